@@ -1,0 +1,29 @@
+# Two entry points for a fresh machine with only python3: `make demo` and `make test`.
+PYTHON ?= python3
+VENV := .venv
+BIN := $(VENV)/bin
+STAMP := $(VENV)/.installed
+
+.PHONY: demo test lint bench clean
+
+$(STAMP): pyproject.toml
+	$(PYTHON) -m venv $(VENV)
+	$(BIN)/python -m pip install --quiet --upgrade pip
+	$(BIN)/python -m pip install --quiet -e '.[test]'
+	touch $(STAMP)
+
+demo: $(STAMP)
+	$(BIN)/cyanorisk demo --config config/demo.toml
+
+test: $(STAMP)
+	$(BIN)/ruff check src tests benchmarks
+	$(BIN)/python -m pytest
+
+lint: $(STAMP)
+	$(BIN)/ruff check src tests benchmarks
+
+bench: $(STAMP)
+	$(BIN)/python benchmarks/bench_ingest.py
+
+clean:
+	rm -rf $(VENV) build src/*.egg-info .pytest_cache .ruff_cache
