@@ -195,12 +195,21 @@ def combine_date_time(date: pa.Array, time: pa.Array | None, order: str | None,
     return out, parsed.order, parsed.note
 
 
+def runs_newest_first(naive_ns: np.ndarray) -> bool:
+    """True when consecutive rows mostly step back in time (exports that list newest first)."""
+    valid = naive_ns[naive_ns != NAT]
+    step = np.diff(valid)
+    return int((step < 0).sum()) > int((step > 0).sum())
+
+
 def localize(naive_ns: np.ndarray, timezone: str) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Local wall-clock stamps of a zone with daylight saving to UTC.
 
     Ambiguous stamps (the repeated hour when clocks go back) are resolved by their order in the
-    file: the first occurrence of a wall-clock time is read as daylight time, a later one as
-    standard time. Stamps in the hour skipped when clocks go forward do not exist.
+    file: in a file written oldest first, the first occurrence of a wall-clock time is read as
+    daylight time and a later one as standard time; in a file written newest first (see
+    :func:`runs_newest_first`), the other way round. Stamps in the hour skipped when clocks go
+    forward do not exist.
 
     Returns
     -------
@@ -231,6 +240,7 @@ def localize(naive_ns: np.ndarray, timezone: str) -> tuple[np.ndarray, np.ndarra
             ambiguous[amb_pos] = True
             stamps = pd.Series(naive_ns[amb_pos])
             first = (stamps.groupby(stamps).cumcount() == 0).to_numpy()
-            resolved = _ns(idx[amb_pos].tz_localize(timezone, ambiguous=first))
+            is_dst = ~first if runs_newest_first(naive_ns) else first
+            resolved = _ns(idx[amb_pos].tz_localize(timezone, ambiguous=is_dst))
             out[amb_pos] = resolved
     return out, ambiguous, nonexistent

@@ -1,0 +1,133 @@
+"""The command line. Thin: it parses arguments, calls the modules and prints their results.
+
+Errors are one sentence naming the file (and line and column where there is one) on stderr,
+with a non-zero exit status: 2 for a configuration problem, 1 for a data problem.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from collections.abc import Iterable, Iterator
+from pathlib import Path
+from typing import TypeVar
+
+from cyanorisk import __version__
+from cyanorisk.config import Config, ConfigError, load_config
+from cyanorisk.ingest.quality import IngestError
+
+T = TypeVar("T")
+
+
+def progress(items: Iterable[T], total: int, label: str) -> Iterator[T]:
+    """Yield ``items`` while drawing a progress bar on stderr (only on a terminal)."""
+    show = sys.stderr.isatty()
+    for i, item in enumerate(items, start=1):
+        if show:
+            done = int(30 * (i - 1) / max(total, 1))
+            sys.stderr.write(f"\r{label} [{'#' * done}{'.' * (30 - done)}] {i - 1}/{total}")
+            sys.stderr.flush()
+        yield item
+    if show:
+        sys.stderr.write(f"\r{label} [{'#' * 30}] {total}/{total}\n")
+
+
+def _config(args: argparse.Namespace, check_files: bool = True) -> Config:
+    return load_config(args.config, check_files=check_files)
+
+
+def cmd_ingest(args: argparse.Namespace) -> int:
+    """Ingest every site's weather files; write clean series and rejects; print the summary."""
+    from cyanorisk.ingest.sites import ingest_site_weather, write_site_weather
+    from cyanorisk.report.ingest_summary import summary_data, summary_text
+
+    config = _config(args)
+    results = [ingest_site_weather(config, site)
+               for site in progress(config.sites, len(config.sites), "ingest")]
+    written = {r.site.id: [str(p) for p in write_site_weather(config, r)] for r in results}
+    if args.json:
+        print(json.dumps([summary_data(r.site, r.meta, written[r.site.id]) for r in results],
+                         indent=2, default=str))
+    else:
+        for r in results:
+            print(summary_text(r.site, r.meta, written[r.site.id]))
+    return 0
+
+
+def cmd_check(args: argparse.Namespace) -> int:
+    """Validate the configuration and every weather file's layout, without ingesting."""
+    from cyanorisk.ingest.dialects import column_plan, sniff_layout
+    from cyanorisk.ingest.lines import read_text
+
+    config = _config(args)
+    for site in config.sites:
+        dialect = config.dialects[site.weather.dialect]
+        print(f"{site.name} ({site.id}): {len(site.weather.files)} weather file(s), "
+              f"dialect '{site.weather.dialect}', zone {site.timezone}")
+        for path in site.weather.files:
+            layout = sniff_layout(read_text(path, dialect.encoding), dialect)
+            plan, ignored = column_plan(layout, path)
+            notes = "; ".join(layout.assumptions) or "layout as declared"
+            print(f"  {path.name}: {len(plan)} variable column(s)"
+                  + (f", ignored {', '.join(ignored)}" if ignored else "") + f" ({notes})")
+    print(f"{config.path}: configuration is valid")
+    return 0
+
+
+def cmd_demo(args: argparse.Namespace) -> int:
+    """Generate the demo reservoir's data, then ingest it."""
+    from cyanorisk.demo import write_demo
+
+    config = _config(args, check_files=False)
+    if config.demo is None:
+        raise ConfigError(config.path, "demo", "missing; the demo needs a [demo] table")
+    years = args.years or config.demo.years
+    files = write_demo(config.demo.out_dir, years, config.demo.seed)
+    print(f"demo: wrote {len(files.weather)} weather export(s) for Tallowbark Reservoir "
+          f"({years} years) under {config.demo.out_dir}")
+    args.json = False
+    return cmd_ingest(args)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="cyanorisk",
+        description="Bloom-risk early warning for lakes and reservoirs.")
+    parser.add_argument("--version", action="version", version=f"cyanorisk {__version__}")
+    sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
+
+    def command(name: str, func, help_text: str, config_required: bool = True):
+        p = sub.add_parser(name, help=help_text, description=help_text)
+        p.add_argument("--config", type=Path, required=config_required, default=None,
+                       help="site configuration (TOML)"
+                            + ("" if config_required else "; default: the embedded demo"))
+        p.set_defaults(func=func)
+        return p
+
+    p = command("demo", cmd_demo, "generate the demo reservoir's data and run the job on it",
+                config_required=False)
+    p.add_argument("--years", type=int, default=None, help="years of data to generate")
+    p = command("ingest", cmd_ingest, "clean every site's weather files; write series and rejects")
+    p.add_argument("--json", action="store_true", help="print the summary as JSON")
+    command("check", cmd_check, "validate the configuration and the layout of every input file")
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    args = build_parser().parse_args(argv)
+    try:
+        return args.func(args)
+    except ConfigError as exc:
+        print(f"cyanorisk: {exc}", file=sys.stderr)
+        return 2
+    except IngestError as exc:
+        print(f"cyanorisk: {exc}", file=sys.stderr)
+        return 1
+    except OSError as exc:
+        print(f"cyanorisk: {exc.filename or ''}: {exc.strerror or exc}", file=sys.stderr)
+        return 1
+
+
+if __name__ == "__main__":
+    sys.exit(main())

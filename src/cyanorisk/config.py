@@ -1,0 +1,325 @@
+"""Loading and validating the TOML site configuration.
+
+Every key is checked on load: an unknown key, a value of the wrong type or outside its allowed
+set, an unknown time zone or a weather file pattern that matches nothing gives a
+:class:`ConfigError` whose one sentence names the file and the key, e.g.::
+
+    config/demo.toml: key 'sites[0].timezone': 'Europe/Atlantis' is not an IANA time zone
+
+Relative paths are read from ``root``, itself relative to the configuration file's folder
+(default: that folder). The embedded demo configuration (``cyanorisk demo`` without
+``--config``) has no folder of its own and reads its paths from the working directory.
+``config/demo.toml`` in the repository is the same file as the embedded one.
+"""
+
+from __future__ import annotations
+
+import glob
+import tomllib
+import zoneinfo
+from dataclasses import dataclass, field
+from importlib import resources
+from pathlib import Path
+from typing import Any
+
+import pandas as pd
+
+from cyanorisk.ingest.dialects import (
+    DATE_ORDERS,
+    DEFAULT_MISSING,
+    STAMP_MARKS,
+    ColumnSpec,
+    WeatherDialect,
+)
+from cyanorisk.ingest.weather import BAD_ROW_POLICIES, DUPLICATE_POLICIES, OFF_GRID_POLICIES
+
+EMBEDDED_DEMO = "demo.toml"
+USES = ("drinking", "recreation")
+
+
+class ConfigError(ValueError):
+    """A configuration problem, told in one sentence naming the file and the key."""
+
+    def __init__(self, path: object, key: str | None, message: str) -> None:
+        self.path, self.key = str(path), key
+        where = f"{path}: key '{key}'" if key else f"{path}"
+        super().__init__(f"{where}: {message}")
+
+
+@dataclass(frozen=True)
+class IngestSettings:
+    """Policies of the cleaning steps (see :func:`cyanorisk.ingest.read_weather`)."""
+
+    bad_rows: str = "stop"
+    off_grid: str = "aggregate"
+    duplicates: str = "last"
+
+
+@dataclass(frozen=True)
+class WeatherSource:
+    """Where a site's weather files are and how they are laid out."""
+
+    patterns: tuple[str, ...]
+    """File patterns as written in the configuration (globs allowed)."""
+    files: tuple[Path, ...]
+    """Files matched, in pattern order and sorted by name within a pattern."""
+    dialect: str
+    period: tuple[str | None, str | None] | None = None
+
+
+@dataclass(frozen=True)
+class Site:
+    """One water body."""
+
+    id: str
+    name: str
+    timezone: str
+    use: str
+    """Intended use: 'drinking' or 'recreation'."""
+    interval: pd.Timedelta
+    weather: WeatherSource
+
+
+@dataclass(frozen=True)
+class DemoSettings:
+    """What ``cyanorisk demo`` generates."""
+
+    out_dir: Path
+    years: int = 12
+    seed: int = 20261202
+
+
+@dataclass(frozen=True)
+class Config:
+    """A validated configuration."""
+
+    path: str
+    """The file it came from (or ``<embedded demo>``)."""
+    root: Path
+    data_dir: Path
+    reports_dir: Path
+    models_dir: Path
+    ingest: IngestSettings
+    dialects: dict[str, WeatherDialect]
+    sites: tuple[Site, ...]
+    demo: DemoSettings | None = None
+    raw: dict[str, Any] = field(default_factory=dict, repr=False)
+
+    def site(self, site_id: str) -> Site:
+        for s in self.sites:
+            if s.id == site_id:
+                return s
+        raise KeyError(f"no site '{site_id}'; sites: {', '.join(s.id for s in self.sites)}")
+
+
+def embedded_demo_text() -> str:
+    """Text of the demo configuration shipped inside the package."""
+    return resources.files("cyanorisk").joinpath("data", EMBEDDED_DEMO).read_text("utf-8")
+
+
+def load_config(path: str | Path | None = None, *, check_files: bool = True) -> Config:
+    """Load and validate a configuration file, or the embedded demo configuration.
+
+    Parameters
+    ----------
+    path : path, optional
+        The TOML file; None for the embedded demo configuration.
+    check_files : bool
+        Require every weather file pattern to match at least one file.
+
+    Raises
+    ------
+    ConfigError
+        With one sentence naming the file and the key.
+    """
+    if path is None:
+        label, text, base = "<embedded demo>", embedded_demo_text(), Path.cwd()
+    else:
+        p = Path(path)
+        if not p.is_file():
+            raise ConfigError(p, None, "no such configuration file")
+        label, text, base = str(p), p.read_text("utf-8"), p.parent
+    try:
+        raw = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise ConfigError(label, None, f"not valid TOML: {exc}") from None
+    return _Reader(label, base, path is None).config(raw, check_files)
+
+
+_TOP = {"root", "data_dir", "reports_dir", "models_dir", "ingest", "dialects", "sites", "demo"}
+_DIALECT = {"separator", "decimal", "encoding", "skip_lines", "date_column", "time_column",
+            "timestamp_column", "date_order", "stamp_zone", "stamp_marks", "missing", "columns",
+            "other_columns", "coerce_year"}
+_SITE = {"id", "name", "timezone", "use", "interval", "weather"}
+
+
+class _Reader:
+    """Walks the parsed TOML, checking each key as it goes."""
+
+    def __init__(self, label: str, base: Path, embedded: bool) -> None:
+        self.label, self.base, self.embedded = label, base, embedded
+
+    def fail(self, key: str | None, message: str) -> ConfigError:
+        return ConfigError(self.label, key, message)
+
+    def keys(self, table: dict, allowed: set[str], where: str) -> None:
+        for k in table:
+            if k not in allowed:
+                key = f"{where}.{k}" if where else k
+                raise self.fail(key, f"unknown key; valid keys here: {', '.join(sorted(allowed))}")
+
+    def get(self, table: dict, key: str, kind: type | tuple, where: str, default: Any = ...) -> Any:
+        full = f"{where}.{key}" if where else key
+        if key not in table:
+            if default is ...:
+                raise self.fail(full, "missing; it is required")
+            return default
+        value = table[key]
+        kinds = kind if isinstance(kind, tuple) else (kind,)
+        if isinstance(value, bool) and bool not in kinds or not isinstance(value, kinds):
+            names = " or ".join(k.__name__ for k in kinds)
+            raise self.fail(full, f"expected {names}, got {type(value).__name__} {value!r}")
+        return value
+
+    def choice(self, table: dict, key: str, allowed: tuple, where: str, default: Any) -> Any:
+        value = self.get(table, key, str, where, default)
+        if value is not None and value not in allowed:
+            full = f"{where}.{key}" if where else key
+            raise self.fail(full, f"{value!r} is not one of {', '.join(map(repr, allowed))}")
+        return value
+
+    def config(self, raw: dict, check_files: bool) -> Config:
+        self.keys(raw, _TOP, "")
+        root_text = self.get(raw, "root", str, "", ".")
+        root = self.base if self.embedded else (self.base / root_text)
+        self.root = root.resolve()
+        ing = self.get(raw, "ingest", dict, "", {})
+        self.keys(ing, {"bad_rows", "off_grid", "duplicates"}, "ingest")
+        ingest = IngestSettings(
+            bad_rows=self.choice(ing, "bad_rows", BAD_ROW_POLICIES, "ingest", "stop"),
+            off_grid=self.choice(ing, "off_grid", OFF_GRID_POLICIES, "ingest", "aggregate"),
+            duplicates=self.choice(ing, "duplicates", DUPLICATE_POLICIES, "ingest", "last"))
+        dialects = {name: self.dialect(table, f"dialects.{name}")
+                    for name, table in self.get(raw, "dialects", dict, "", {}).items()}
+        sites_raw = self.get(raw, "sites", list, "")
+        if not sites_raw:
+            raise self.fail("sites", "no site is configured; add a [[sites]] table")
+        sites = tuple(self.site(s, f"sites[{i}]", dialects, check_files)
+                      for i, s in enumerate(sites_raw))
+        ids = [s.id for s in sites]
+        if len(set(ids)) != len(ids):
+            raise self.fail("sites", f"site ids must be unique; repeated: "
+                                     f"{', '.join(sorted({i for i in ids if ids.count(i) > 1}))}")
+        demo = None
+        if "demo" in raw:
+            d = self.get(raw, "demo", dict, "")
+            self.keys(d, {"out_dir", "years", "seed"}, "demo")
+            demo = DemoSettings(self.path(self.get(d, "out_dir", str, "demo")),
+                                self.get(d, "years", int, "demo", 12),
+                                self.get(d, "seed", int, "demo", 20261202))
+        return Config(
+            path=self.label, root=self.root,
+            data_dir=self.path(self.get(raw, "data_dir", str, "", "work")),
+            reports_dir=self.path(self.get(raw, "reports_dir", str, "", "reports")),
+            models_dir=self.path(self.get(raw, "models_dir", str, "", "models")),
+            ingest=ingest, dialects=dialects, sites=sites, demo=demo, raw=raw)
+
+    def path(self, text: str) -> Path:
+        p = Path(text)
+        return p if p.is_absolute() else self.root / p
+
+    def dialect(self, table: Any, where: str) -> WeatherDialect:
+        if not isinstance(table, dict):
+            raise self.fail(where, f"expected a table, got {type(table).__name__}")
+        self.keys(table, _DIALECT, where)
+        columns = {}
+        for col, spec in self.get(table, "columns", dict, where, {}).items():
+            key = f"{where}.columns.{col}"
+            if spec == "ignore":
+                columns[col] = ColumnSpec(None)
+            elif isinstance(spec, dict):
+                self.keys(spec, {"variable", "unit"}, key)
+                columns[col] = ColumnSpec(self.get(spec, "variable", str, key),
+                                          self.get(spec, "unit", str, key, None))
+            else:
+                raise self.fail(key, "expected \"ignore\" or a table "
+                                     "{ variable = \"...\", unit = \"...\" }")
+        missing = self.get(table, "missing", list, where, list(DEFAULT_MISSING))
+        if not all(isinstance(m, str) for m in missing):
+            raise self.fail(f"{where}.missing", "expected a list of strings")
+        kwargs = dict(
+            separator=self.get(table, "separator", str, where, None),
+            decimal=self.choice(table, "decimal", (".", ","), where, None),
+            encoding=self.get(table, "encoding", str, where, "utf-8"),
+            skip_lines=self.get(table, "skip_lines", int, where, None),
+            date_column=self.get(table, "date_column", str, where, None),
+            time_column=self.get(table, "time_column", str, where, None),
+            timestamp_column=self.get(table, "timestamp_column", str, where, None),
+            date_order=self.choice(table, "date_order", DATE_ORDERS, where, None),
+            stamp_zone=self.get(table, "stamp_zone", str, where, "local"),
+            stamp_marks=self.choice(table, "stamp_marks", STAMP_MARKS, where, "start"),
+            missing=tuple(missing), columns=columns,
+            other_columns=self.choice(table, "other_columns", ("error", "ignore"), where, "error"),
+            coerce_year=self.get(table, "coerce_year", int, where, None),
+        )
+        try:
+            return WeatherDialect(**kwargs)
+        except (ValueError, KeyError) as exc:
+            raise self.fail(where, str(exc).strip("'\"")) from None
+
+    def site(self, table: Any, where: str, dialects: dict, check_files: bool) -> Site:
+        if not isinstance(table, dict):
+            raise self.fail(where, f"expected a table, got {type(table).__name__}")
+        self.keys(table, _SITE, where)
+        tz = self.get(table, "timezone", str, where)
+        try:
+            zoneinfo.ZoneInfo(tz)
+        except (zoneinfo.ZoneInfoNotFoundError, ValueError):
+            raise self.fail(f"{where}.timezone", f"{tz!r} is not an IANA time zone "
+                                                 "(e.g. 'Australia/Melbourne', 'UTC')") from None
+        interval_text = self.get(table, "interval", str, where, "30min")
+        try:
+            interval = pd.Timedelta(interval_text)
+        except ValueError:
+            interval = pd.NaT
+        if pd.isna(interval) or interval <= pd.Timedelta(0) or pd.Timedelta("1D") % interval:
+            raise self.fail(f"{where}.interval", f"{interval_text!r} is not an interval that divides "
+                                                 "a day, e.g. '30min' or '1h'")
+        w = self.get(table, "weather", dict, where)
+        wk = f"{where}.weather"
+        self.keys(w, {"files", "dialect", "period"}, wk)
+        patterns = self.get(w, "files", list, wk)
+        dialect = self.get(w, "dialect", str, wk)
+        if dialect not in dialects:
+            raise self.fail(f"{wk}.dialect", f"{dialect!r} is not defined under [dialects]; "
+                                             f"defined: {', '.join(dialects) or 'none'}")
+        files: list[Path] = []
+        for pattern in patterns:
+            if not isinstance(pattern, str):
+                raise self.fail(f"{wk}.files", "expected a list of file paths or patterns")
+            found = sorted(Path(p) for p in glob.glob(str(self.path(pattern))))
+            if check_files and not found:
+                raise self.fail(f"{wk}.files", f"no file matches {pattern!r} "
+                                                f"(looked in {self.root})")
+            files.extend(found)
+        period = None
+        if "period" in w:
+            pt = self.get(w, "period", dict, wk)
+            self.keys(pt, {"start", "end"}, f"{wk}.period")
+            period = (self._date(pt, "start", f"{wk}.period"), self._date(pt, "end", f"{wk}.period"))
+        return Site(
+            id=self.get(table, "id", str, where), name=self.get(table, "name", str, where),
+            timezone=tz, use=self.choice(table, "use", USES, where, "drinking"),
+            interval=interval,
+            weather=WeatherSource(tuple(patterns), tuple(files), dialect, period))
+
+    def _date(self, table: dict, key: str, where: str) -> str | None:
+        value = table.get(key)
+        if value is None:
+            return None
+        text = str(value)
+        try:
+            pd.Timestamp(text)
+        except ValueError:
+            raise self.fail(f"{where}.{key}", f"{text!r} is not a date") from None
+        return text

@@ -1,0 +1,174 @@
+"""The demo scenario: Tallowbark Reservoir, a fictitious water-supply reservoir above the
+fictitious town of Merrin Falls, in a temperate southern-hemisphere climate (warm in January).
+
+Everything here is invented for the demo and deterministic by seed. The weather is simulated on
+a half-hourly UTC grid, then exported the way a real automatic weather station's logger would
+write it, with the usual quirks (see ``../shared/DESIGN.md``): local wall-clock time with daylight
+saving, a date column and a separate time column with day-first dates, the day's last reading
+stamped 24:00, the rows of each day newest first, repeated rows, extra readings off the regular
+grid, sensor drop-outs, '-' or blank for missing values, 16-point compass directions and CALM,
+wind in km/h, and a handful of rows mangled by hand.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from cyanorisk.compass import POINTS_16
+
+SITE_ID = "tallowbark"
+TIMEZONE = "Australia/Melbourne"
+"""A real zone with daylight saving, so the exports carry the repeated and skipped hours."""
+START = "2013-07-01"
+"""The station's first day (local); the demo seasons run July to June."""
+
+
+@dataclass(frozen=True)
+class DemoFiles:
+    """What :func:`write_demo` wrote."""
+
+    weather: list[Path]
+    """One export per year, in time order."""
+
+
+def simulate_weather(years: int, seed: int) -> pd.DataFrame:
+    """A half-hourly weather record on a UTC grid, in canonical units.
+
+    Seasonal and daily cycles of temperature, day-to-day (synoptic) anomalies as an AR(1)
+    process, wind from a gamma distribution modulated by the same weather systems, rain from a
+    two-state wet/dry chain, sunshine that follows the sun and the cloud, and a water temperature
+    that lags the air by about two weeks. Plausible, not a climate model.
+    """
+    rng = np.random.default_rng(seed)
+    start = pd.Timestamp(START, tz=TIMEZONE).tz_convert("UTC")
+    idx = pd.date_range(start, periods=int(years * 365.25 * 48), freq="30min")
+    n = len(idx)
+    local = idx.tz_convert(TIMEZONE)
+    doy = local.day_of_year.to_numpy()
+    hour = local.hour.to_numpy() + local.minute.to_numpy() / 60
+    season = np.cos(2 * np.pi * (doy - 20) / 365.25)  # +1 in late January
+    days = n // 48 + 1
+    synoptic = np.zeros(days)
+    shocks = rng.normal(0, 1.0, days)
+    for d in range(1, days):
+        synoptic[d] = 0.75 * synoptic[d - 1] + shocks[d]
+    # a few hot, still spells each summer make the blooms of the lab simulation
+    heat = np.repeat(synoptic, 48)[:n]
+    air = 14.5 + 7.0 * season + 5.5 * np.sin(2 * np.pi * (hour - 9) / 24) + 2.2 * heat
+    air += rng.normal(0, 0.6, n)
+    windiness = np.exp(-0.25 * heat + 0.15 * rng.normal(0, 1, days).repeat(48)[:n])
+    wind = rng.gamma(2.2, 1.6, n) * windiness * (0.8 + 0.4 * np.sin(2 * np.pi * (hour - 10) / 24))
+    calm = rng.random(n) < 0.02
+    wind[calm] = 0.0
+    gust = wind * rng.uniform(1.3, 1.9, n)
+    direction = (200 + 60 * np.sin(np.arange(n) / 300) + rng.normal(0, 40, n)) % 360
+    wet_day = np.zeros(days, dtype=bool)
+    u = rng.random(days)
+    for d in range(1, days):
+        p_wet = 0.55 if wet_day[d - 1] else 0.18 - 0.06 * np.cos(2 * np.pi * (d % 365) / 365)
+        wet_day[d] = u[d] < p_wet
+    wet = np.repeat(wet_day, 48)[:n] & (rng.random(n) < 0.25)
+    rain = np.where(wet, rng.exponential(0.8, n), 0.0)
+    sun_height = np.clip(np.sin(2 * np.pi * (hour - 6.5) / 26), 0, None)
+    cloud = np.clip(0.35 + 0.25 * np.repeat(wet_day, 48)[:n] - 0.1 * heat, 0.05, 0.95)
+    solar = 1050 * sun_height * (0.75 + 0.25 * season) * (1 - 0.7 * cloud)
+    water = pd.Series(air).ewm(halflife=14 * 48).mean().to_numpy() + 1.5
+    rh = np.clip(72 - 2.0 * (air - 14) + 15 * wet + rng.normal(0, 6, n), 8, 100)
+    pressure = 1013 - 4 * heat + rng.normal(0, 1.5, n)
+    return pd.DataFrame({
+        "air_temp_c": air.round(1), "water_temp_c": water.round(1),
+        "wind_speed_ms": wind.round(2), "wind_gust_ms": gust.round(2),
+        "wind_dir_deg": direction.round(0), "rain_mm": rain.round(1),
+        "rel_humidity_pct": rh.round(0), "solar_wm2": solar.round(0),
+        "pressure_hpa": pressure.round(1),
+    }, index=idx)
+
+
+EXPORT_COLUMNS = ["Date", "Time", "AirT", "WaterT", "WindSpd", "WindGust", "WindDir", "Rain",
+                  "RH", "Solar", "Baro", "Batt"]
+"""Column names the (fictitious) logger writes; see the demo dialect in the configuration."""
+
+
+def logger_export(weather: pd.DataFrame, seed: int) -> pd.DataFrame:
+    """The weather as the station's logger exports it: strings, quirks and all."""
+    rng = np.random.default_rng(seed + 1)
+    w = weather.copy()
+    n = len(w)
+    # sensor drop-outs: runs of missing rows
+    drop = np.zeros(n, dtype=bool)
+    for s in rng.choice(n - 50, size=max(1, n // 3000), replace=False):
+        drop[s:s + rng.integers(1, 14)] = True
+    w = w[~drop]
+    local = w.index.tz_convert(TIMEZONE)
+    wall = local.tz_localize(None)
+    end_of_day = (wall.hour == 0) & (wall.minute == 0)
+    day = wall.where(~end_of_day, wall - pd.Timedelta(days=1))
+    out = pd.DataFrame({
+        "Date": day.strftime("%d/%m/%Y"),
+        "Time": np.where(end_of_day, "24:00", wall.strftime("%H:%M")),
+        "AirT": w["air_temp_c"].map("{:.1f}".format).to_numpy(),
+        "WaterT": w["water_temp_c"].map("{:.1f}".format).to_numpy(),
+        "WindSpd": (w["wind_speed_ms"] * 3.6).round(0).map("{:.0f}".format).to_numpy(),
+        "WindGust": (w["wind_gust_ms"] * 3.6).round(0).map("{:.0f}".format).to_numpy(),
+        "WindDir": np.array(POINTS_16)[np.floor((w["wind_dir_deg"].to_numpy() + 11.25) / 22.5)
+                                       .astype(int) % 16],
+        "Rain": w["rain_mm"].map("{:.1f}".format).to_numpy(),
+        "RH": w["rel_humidity_pct"].map("{:.0f}".format).to_numpy(),
+        "Solar": w["solar_wm2"].map("{:.0f}".format).to_numpy(),
+        "Baro": w["pressure_hpa"].map("{:.1f}".format).to_numpy(),
+        "Batt": rng.uniform(12.4, 13.1, len(w)).round(2).astype(str),
+    })
+    out.loc[w["wind_speed_ms"].to_numpy() == 0, "WindDir"] = "CALM"
+    out["_utc"] = w.index
+    out["_day"] = day.normalize()
+    # missing values: '-' mostly, blank sometimes
+    for col in ["AirT", "WindSpd", "WindDir", "Solar"]:
+        m = rng.random(len(out)) < 0.003
+        out.loc[m, col] = np.where(rng.random(int(m.sum())) < 0.7, "-", "")
+    # off-grid extra readings (a manual poll of the logger)
+    extra = out.sample(frac=0.002, random_state=seed).copy()
+    minutes = rng.integers(3, 27, len(extra))
+    shifted = extra["_utc"] + pd.to_timedelta(minutes, unit="min")
+    sw = shifted.dt.tz_convert(TIMEZONE).dt.tz_localize(None)
+    extra["Date"], extra["Time"] = sw.dt.strftime("%d/%m/%Y"), sw.dt.strftime("%H:%M")
+    extra["_utc"], extra["_day"] = shifted, sw.dt.normalize()
+    # repeated rows (the logger re-sends a block after a comms failure)
+    dup = out.sample(frac=0.003, random_state=seed + 2)
+    out = pd.concat([out, extra, dup], ignore_index=True)
+    # rows of each day newest first; days in order
+    out = out.sort_values(["_day", "_utc"], ascending=[True, False], kind="stable")
+    # a few rows mangled by hand
+    bad = rng.choice(len(out), size=max(3, len(out) // 40000), replace=False)
+    kinds = ["Time", "AirT", "Date"]
+    for k, i in enumerate(bad):
+        col = kinds[k % 3]
+        out.iloc[i, out.columns.get_loc(col)] = {"Time": "25:00", "AirT": "21..4",
+                                                 "Date": "31/02/2019"}[col]
+    return out
+
+
+def write_demo(out_dir: Path, years: int, seed: int) -> DemoFiles:
+    """Simulate the demo reservoir and write its station exports, one file per calendar year.
+
+    Files are written whole and moved into place, so an interrupted run leaves no half file.
+    """
+    weather_dir = Path(out_dir) / SITE_ID / "weather"
+    weather_dir.mkdir(parents=True, exist_ok=True)
+    export = logger_export(simulate_weather(years, seed), seed)
+    files = []
+    year = export["_day"].dt.year
+    for y in sorted(year.unique()):
+        part = export[year == y]
+        path = weather_dir / f"tallowbark_aws_{y}.txt"
+        tmp = path.with_suffix(".tmp")
+        header = "Tallowbark Reservoir AWS - Merrin Falls Water - logger export\n"
+        with tmp.open("w", encoding="utf-8", newline="\n") as fh:
+            fh.write(header)
+            part[EXPORT_COLUMNS].to_csv(fh, sep="\t", index=False, lineterminator="\n")
+        tmp.replace(path)
+        files.append(path)
+    return DemoFiles(files)

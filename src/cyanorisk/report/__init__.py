@@ -1,0 +1,1 @@
+"""Rendering of results for people: text, JSON, HTML. Nothing here computes."""

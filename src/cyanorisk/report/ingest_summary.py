@@ -1,0 +1,53 @@
+"""The ingest quality summary, as plain text and as JSON-ready data."""
+
+from __future__ import annotations
+
+from cyanorisk.config import Site
+from cyanorisk.ingest.weather import WeatherMeta
+
+
+def summary_data(site: Site, meta: WeatherMeta, outputs: list[str]) -> dict:
+    """The per-site summary printed by ``cyanorisk ingest --json``."""
+    return {"site_id": site.id, "site_name": site.name, "weather": meta.summary(),
+            "outputs": outputs}
+
+
+def _pct(part: int, whole: int) -> str:
+    return f"{100 * part / whole:.1f}%" if whole else "n/a"
+
+
+def summary_text(site: Site, meta: WeatherMeta, outputs: list[str]) -> str:
+    """A short, readable quality summary of one site's weather ingest."""
+    a = meta.account
+    span = (f"{meta.start:%Y-%m-%d %H:%M} to {meta.end:%Y-%m-%d %H:%M} UTC"
+            if meta.start is not None else "no data")
+    lines = [
+        f"{site.name} ({site.id}): weather from {len(meta.files)} file(s), {span}, "
+        f"grid of {int(meta.interval.total_seconds() // 60)} min",
+        f"  rows read {a.read:,}: kept {a.kept:,}, identical duplicates merged "
+        f"{a.duplicates_identical:,}, conflicting duplicates {a.duplicates_conflicting:,}, "
+        f"off-grid {a.off_grid:,}, rejected {a.rejected:,}",
+    ]
+    by_reason = meta.summary()["ledger_by_reason"]
+    if by_reason:
+        lines.append("  rejects ledger by reason: "
+                     + ", ".join(f"{k} {v:,}" for k, v in sorted(by_reason.items())))
+        first = meta.rejects.iloc[0]
+        lines.append(f"  first: {first['file']}, line {first['line']}"
+                     + (f", column '{first['column']}'" if first["column"] else "")
+                     + f": {first['message']}")
+    if meta.ambiguous_resolved or meta.nonexistent_rejected:
+        lines.append(f"  daylight saving: {meta.ambiguous_resolved} stamp(s) in a repeated hour "
+                     f"resolved by file order, {meta.nonexistent_rejected} in a skipped hour "
+                     "rejected")
+    for var, counts in meta.flag_counts.items():
+        total = sum(counts.values())
+        parts = [f"{k} {_pct(v, total)}" for k, v in counts.items() if k != "ok"]
+        lines.append(f"  {var}: ok {_pct(counts.get('ok', 0), total)}"
+                     + (", " + ", ".join(parts) if parts else ""))
+    assumptions = meta.summary()["assumptions"]
+    if assumptions:
+        lines.append("  assumed: " + "; ".join(assumptions))
+    for out in outputs:
+        lines.append(f"  wrote {out}")
+    return "\n".join(lines)
