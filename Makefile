@@ -13,7 +13,7 @@ $(STAMP): pyproject.toml
 	touch $(STAMP)
 
 demo: $(STAMP)
-	$(BIN)/cyanorisk demo --config config/demo.toml
+	$(BIN)/cyanorisk demo
 
 test: $(STAMP)
 	$(BIN)/ruff check src tests benchmarks
