@@ -3,7 +3,15 @@
 import numpy as np
 import pytest
 
-from cyanorisk.ingest.quality import FLAG_NAMES, AccountingError, Flag, IngestError, Ledger, RowAccount, flag_column
+from cyanorisk.ingest.quality import (
+    FLAG_NAMES,
+    AccountingError,
+    Flag,
+    IngestError,
+    Ledger,
+    RowAccount,
+    flag_column,
+)
 
 
 def test_balanced_account_passes_and_unbalanced_fails():
