@@ -162,6 +162,8 @@ class Parsing:
     missing: tuple[str, ...] = ()
     string_columns: tuple[str, ...] = ()
     """Columns always kept as strings (stamps, directions)."""
+    keep: tuple[str, ...] | None = None
+    """Columns to read; None reads all. Skipping unused columns saves parsing them."""
 
 
 def read_table(text: TextFile, header_index: int, how: Parsing) -> RawTable:
@@ -240,7 +242,7 @@ def _read_exact(text: TextFile, header: list[str], header_index: int, how: Parsi
     if body and not body.endswith(b"\n"):
         body += b"\n"
     columns = _arrow_split(body, header, how, strict=False) if good.any() else {
-        h: pa.chunked_array([], TEXT) for h in header}
+        h: pa.chunked_array([], TEXT) for h in header if how.keep is None or h in how.keep}
     return RawTable(text.path, header, header_index + 1, columns, line_no[good], line_no[bad],
                     counts[bad], text)
 
@@ -260,6 +262,7 @@ def _arrow_split(body: bytes | memoryview, header: list[str], how: Parsing,
     """
     names = [f"c{i}" for i in range(len(header))]
     text_cols = {n for n, h in zip(names, header, strict=True) if h in how.string_columns}
+    wanted = [(h, n) for h, n in zip(header, names, strict=True) if how.keep is None or h in how.keep]
 
     def read(types: dict) -> pa.Table:
         return pacsv.read_csv(
@@ -270,18 +273,19 @@ def _arrow_split(body: bytes | memoryview, header: list[str], how: Parsing,
                 invalid_row_handler=(lambda row: "error") if strict else None),
             convert_options=pacsv.ConvertOptions(
                 column_types=types, strings_can_be_null=False, quoted_strings_can_be_null=False,
-                null_values=list(how.missing), decimal_point=how.decimal),
+                null_values=list(how.missing), decimal_point=how.decimal,
+                include_columns=[n for _, n in wanted]),
         )
 
     try:
-        table = read({n: TEXT if n in text_cols else pa.float64() for n in names})
+        table = read({n: TEXT if n in text_cols else pa.float64() for _, n in wanted})
     except pa.ArrowInvalid as exc:
         if "Expected" in str(exc) and "columns" in str(exc):
             if strict:
                 return None
             raise
-        table = read({n: TEXT for n in names})  # a value column holds text somewhere
-    return {h: table.column(n) for h, n in zip(header, names, strict=True)}
+        table = read({n: TEXT for _, n in wanted})  # a value column holds text somewhere
+    return {h: table.column(n) for h, n in wanted}
 
 
 def is_empty(col: pa.ChunkedArray) -> pa.ChunkedArray:
@@ -306,7 +310,7 @@ def _read_quoted(text: TextFile, header: list[str], header_index: int, line_no: 
             bad_lines.append(line_no[k])
             bad_counts.append(len(fields))
     columns = {h: pa.chunked_array([pa.array([r[i] for r in rows], pa.string()).dictionary_encode()])
-               for i, h in enumerate(header)}
+               for i, h in enumerate(header) if how.keep is None or h in how.keep}
     return RawTable(text.path, header, header_index + 1, columns,
                     np.asarray(good_lines, np.int64), np.asarray(bad_lines, np.int64),
                     np.asarray(bad_counts, np.int64), text)

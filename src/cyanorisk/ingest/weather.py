@@ -199,10 +199,11 @@ def _parse_file(path: Path, k: int, dialect: WeatherDialect, timezone: str, step
     d = layout.dialect
     plan, ignored = column_plan(layout, path)
     stamp_cols = (d.date_column, d.time_column, d.timestamp_column)
+    stamps = tuple(c for c in stamp_cols if c)
     raw = read_table(text, layout.header_index, Parsing(
         d.separator, d.decimal, tuple(d.missing),
-        tuple(c for c in stamp_cols if c) + tuple(c for c, s in plan.items()
-                                                  if s.variable == "wind_dir_deg")))
+        string_columns=stamps + tuple(c for c, s in plan.items() if s.variable == "wind_dir_deg"),
+        keep=stamps + tuple(plan)))
     problems = _Problems(raw, str(path))
     sep_name = SEPARATOR_NAMES.get(d.separator, repr(d.separator))
     problems.add_lines(raw.bad_lines, "field_count", [
