@@ -23,7 +23,7 @@ from cyanorisk.ingest.dialects import sniff_date_order
 NS_PER_DAY = 86_400 * 10**9
 NAT = np.iinfo(np.int64).min
 
-_DATE = re.compile(r"^\s*(\d{1,4})[./-](\d{1,2})[./-](\d{1,4})\s*$")
+_DATE = re.compile(r"^\s*(?P<first>\d{1,4})[./-](?P<second>\d{1,2})[./-](?P<third>\d{1,4})\s*$")
 _TIME = re.compile(r"^\s*(\d{1,2}):(\d{2})(?::(\d{2})(?:\.\d+)?)?\s*$")
 _HHMM = re.compile(r"^\s*(\d{2})(\d{2})\s*$")
 
@@ -60,11 +60,10 @@ def parse_dates(uniques: list[str], order: str | None, coerce_year: int | None =
     Returns days since the epoch as float (NaN for a string that is not a date in ``order``,
     e.g. '31/02/2020').
     """
-    parts = np.full((len(uniques), 3), np.nan)
-    for i, u in enumerate(uniques):
-        m = _DATE.match(u)
-        if m:
-            parts[i] = [float(g) for g in m.groups()]
+    fields = pc.extract_regex(pa.array(uniques, pa.string()), _DATE.pattern)
+    parts = np.column_stack([
+        pc.cast(pc.struct_field(fields, k), pa.float64()).to_numpy(zero_copy_only=False)
+        for k in range(3)]) if uniques else np.zeros((0, 3))
     note = None
     if order is None:
         ok = ~np.isnan(parts[:, 0])
