@@ -30,8 +30,10 @@ from cyanorisk.ingest.dialects import (
     STAMP_MARKS,
     ColumnSpec,
     WeatherDialect,
+    zone_offset,
 )
 from cyanorisk.ingest.weather import BAD_ROW_POLICIES, DUPLICATE_POLICIES, OFF_GRID_POLICIES
+from cyanorisk.units import conversion
 
 EMBEDDED_DEMO = "demo.toml"
 USES = ("drinking", "recreation")
@@ -263,9 +265,19 @@ class _Reader:
             coerce_year=self.get(table, "coerce_year", int, where, None),
         )
         try:
+            zone_offset(kwargs["stamp_zone"])
+        except ValueError as exc:
+            raise self.fail(f"{where}.stamp_zone", str(exc)) from None
+        for col, spec in columns.items():
+            if spec.unit is not None and spec.unit.lower() not in ("compass", "deg"):
+                try:
+                    conversion(spec.unit)
+                except KeyError as exc:
+                    raise self.fail(f"{where}.columns.{col}.unit", exc.args[0]) from None
+        try:
             return WeatherDialect(**kwargs)
         except (ValueError, KeyError) as exc:
-            raise self.fail(where, str(exc).strip("'\"")) from None
+            raise self.fail(where, str(exc.args[0] if exc.args else exc)) from None
 
     def site(self, table: Any, where: str, dialects: dict, check_files: bool) -> Site:
         if not isinstance(table, dict):
@@ -274,7 +286,7 @@ class _Reader:
         tz = self.get(table, "timezone", str, where)
         try:
             zoneinfo.ZoneInfo(tz)
-        except (zoneinfo.ZoneInfoNotFoundError, ValueError):
+        except (zoneinfo.ZoneInfoNotFoundError, ValueError, OSError):
             raise self.fail(f"{where}.timezone", f"{tz!r} is not an IANA time zone "
                                                  "(e.g. 'Australia/Melbourne', 'UTC')") from None
         interval_text = self.get(table, "interval", str, where, "30min")
@@ -282,9 +294,9 @@ class _Reader:
             interval = pd.Timedelta(interval_text)
         except ValueError:
             interval = pd.NaT
-        if pd.isna(interval) or interval <= pd.Timedelta(0) or pd.Timedelta("1D") % interval:
-            raise self.fail(f"{where}.interval", f"{interval_text!r} is not an interval that divides "
-                                                 "a day, e.g. '30min' or '1h'")
+        if pd.isna(interval) or interval < pd.Timedelta("1min") or pd.Timedelta("1D") % interval:
+            raise self.fail(f"{where}.interval", f"{interval_text!r} is not an interval of at least "
+                                                 "a minute that divides a day, e.g. '30min' or '1h'")
         w = self.get(table, "weather", dict, where)
         wk = f"{where}.weather"
         self.keys(w, {"files", "dialect", "period"}, wk)

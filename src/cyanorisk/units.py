@@ -76,6 +76,8 @@ ALIASES: dict[str, str] = {
 }
 """Other spellings of the units above, in lower case."""
 
+_LOWER = {name.lower(): name for name in CONVERSIONS}
+
 
 def conversion(unit: str) -> Conversion:
     """Look up the conversion for a source unit, accepting common spellings.
@@ -85,7 +87,8 @@ def conversion(unit: str) -> Conversion:
     KeyError
         With the list of known units when ``unit`` is not one of them.
     """
-    name = unit if unit in CONVERSIONS else ALIASES.get(unit.strip().lower(), unit)
+    key = unit.strip().lower()
+    name = unit if unit in CONVERSIONS else _LOWER.get(key) or ALIASES.get(key, unit)
     try:
         return CONVERSIONS[name]
     except KeyError:

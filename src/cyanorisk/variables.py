@@ -76,7 +76,7 @@ WEATHER_VARIABLES: dict[str, Variable] = {
                  Resample.MEAN, Fill.LINEAR, _hours(6)),
         Variable("wind_speed_ms", "m s-1", "mean wind speed", 0.0, 75.0,
                  Resample.MEAN, Fill.LINEAR, _hours(1)),
-        Variable("wind_gust_ms", "m s-1", "highest gust in the interval", 0.0, 110.0,
+        Variable("wind_gust_ms", "m s-1", "highest gust in the interval", 0.0, 120.0,
                  Resample.MAX, Fill.LINEAR, _hours(1)),
         Variable("wind_dir_deg", "deg", "direction the wind blows from, clockwise from true north",
                  0.0, 360.0, Resample.CIRCULAR_MEAN, Fill.CIRCULAR, _hours(1)),
