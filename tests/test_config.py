@@ -290,28 +290,22 @@ def test_period_accepts_toml_dates_and_strings(tmp_path):
         pytest.param({"timezone": "Europe"}, "sites[0].timezone",
                      "'Europe' is not an IANA time zone", id="time-zone-region-folder"),
         pytest.param({"site": 'interval = "7min"'}, "sites[0].interval",
-                     
                      "'7min' is not an interval of at least a minute that divides a day",
                      id="interval-7min"),
         pytest.param({"site": 'interval = "25h"'}, "sites[0].interval",
-                     
                      "'25h' is not an interval of at least a minute that divides a day",
                      id="interval-25h"),
         pytest.param({"site": 'interval = "0min"'}, "sites[0].interval",
-                     
                      "'0min' is not an interval of at least a minute that divides a day",
                      id="interval-zero"),
         pytest.param({"site": 'interval = "-30min"'}, "sites[0].interval",
-                     
                      "'-30min' is not an interval of at least a minute that divides a day",
                      id="interval-negative"),
         pytest.param({"site": 'interval = "half an hour"'}, "sites[0].interval",
-                     
                      "'half an hour' is not an interval of at least a minute that divides a day",
                      id="interval-words"),
         # pandas reads a bare number as nanoseconds; '30' almost surely means 30 minutes
         pytest.param({"site": 'interval = "30"'}, "sites[0].interval",
-                     
                      "'30' is not an interval of at least a minute that divides a day",
                      id="interval-without-unit"),
         pytest.param({"dialect_name": "nope"}, "sites[0].weather.dialect",
