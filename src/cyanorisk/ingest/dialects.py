@@ -124,35 +124,48 @@ class Layout:
     assumptions: tuple[str, ...]
 
 
-def sniff_layout(text: TextFile, dialect: WeatherDialect) -> Layout:
-    """Resolve separator, preamble, decimal mark and stamp columns of a file.
+@dataclass(frozen=True)
+class Table:
+    """Separator, preamble, decimal mark and header of a delimited file, declared or sniffed."""
+
+    separator: str
+    skip_lines: int
+    decimal: str
+    header: list[str]
+    assumptions: tuple[str, ...]
+
+
+def sniff_table(text: TextFile, separator: str | None, skip_lines: int | None,
+                decimal: str | None) -> Table:
+    """Resolve separator, preamble and decimal mark of a file; report what was sniffed.
 
     The separator and the header line are chosen together: for each candidate separator the
     modal number of fields over the sampled lines is found; the header is the first line with
-    that many fields, provided the lines after it keep that count.
+    that many fields.
 
     Raises
     ------
     IngestError
-        When no candidate separator splits the lines into a steady number of fields.
+        When no candidate separator splits the lines into a steady number of fields, or the
+        header has a single column.
     """
     said: list[str] = []
     sample = text.head(60)
-    sep = dialect.separator
-    skip = dialect.skip_lines
+    sep, skip = separator, skip_lines
     if sep is None or skip is None:
         candidates = [sep] if sep is not None else list(SEPARATORS)
         best = None
         for cand in candidates:
             counts = [len(split_header(line, cand)) if line.strip() else 0 for line in sample]
-            tail = [c for c in counts[len(counts) // 2:] if c] or [c for c in counts if c]
-            modal = Counter(tail).most_common(1)[0][0] if tail else 0
+            modal = Counter(c for c in counts if c).most_common(1)[0][0] if any(counts) else 0
             if modal < 2:
                 continue
             header_at = skip if skip is not None else next(
                 (i for i, c in enumerate(counts) if c == modal), 0)
             if best is None or modal > best[1]:
                 best = (cand, modal, header_at)
+        if sep is not None and skip is None and best is not None and best[2] > 0:
+            _refuse_wrong_separator(text.path, sample, sep)
         if best is None:
             what = f"separator {SEPARATOR_NAMES.get(sep, repr(sep))}" if sep else "any separator"
             raise IngestError(text.path, f"the lines do not split into columns with {what}; "
@@ -165,26 +178,47 @@ def sniff_layout(text: TextFile, dialect: WeatherDialect) -> Layout:
     lines = text.head(skip + 1)
     if len(lines) <= skip:
         raise IngestError(text.path, f"no header line: the file has {len(lines)} line(s) and the "
-                                     f"dialect skips {skip}")
+                                     f"layout skips {skip}")
     header = split_header(lines[skip], sep)
     if len(header) < 2:
         raise IngestError(text.path, f"the header has one column only with the "
                                      f"{SEPARATOR_NAMES.get(sep, repr(sep))} separator; the file "
                                      "uses another separator", line=skip + 1)
-    decimal = dialect.decimal
     if decimal is None:
         decimal = _sniff_decimal(text, sep, skip)
         if decimal == ",":
             said.append("decimal comma (sniffed)")
+    return Table(sep, skip, decimal, header, tuple(said))
+
+
+def _refuse_wrong_separator(path: object, sample: list[str], declared: str) -> None:
+    """Raise when every sampled line splits evenly on another separator than the declared one
+    (a semicolon file with decimal commas read as comma-separated looks like a preamble)."""
+    lines = [line for line in sample if line.strip()]
+    for other in SEPARATORS:
+        if other == declared:
+            continue
+        counts = {len(split_header(line, other)) for line in lines}
+        if len(counts) == 1 and counts.pop() >= 2:
+            raise IngestError(path, f"the lines split evenly on {SEPARATOR_NAMES[other]}s, not on "
+                                    f"the declared {SEPARATOR_NAMES.get(declared, repr(declared))} "
+                                    "separator; correct the separator in the dialect", line=1)
+
+
+def sniff_layout(text: TextFile, dialect: WeatherDialect) -> Layout:
+    """Resolve a weather file's layout: :func:`sniff_table`, then the stamp columns."""
+    table = sniff_table(text, dialect.separator, dialect.skip_lines, dialect.decimal)
+    said = list(table.assumptions)
+    header, skip = table.header, table.skip_lines
     date_col, time_col, ts_col = dialect.date_column, dialect.time_column, dialect.timestamp_column
     if not (date_col or ts_col):
-        date_col, time_col, ts_col, note = _sniff_stamp_columns(header)
+        date_col, time_col, ts_col, note = _sniff_stamp_columns(header, text.path, skip + 1)
         said.append(note)
     for name in (date_col, time_col, ts_col):
         if name and name not in header:
             raise IngestError(text.path, f"the dialect names column '{name}' but the header has "
                                          f"{', '.join(header)}", line=skip + 1, column=name)
-    resolved = replace(dialect, separator=sep, skip_lines=skip, decimal=decimal,
+    resolved = replace(dialect, separator=table.separator, skip_lines=skip, decimal=table.decimal,
                        date_column=date_col, time_column=time_col, timestamp_column=ts_col)
     return Layout(resolved, header, skip, tuple(said))
 
@@ -198,7 +232,8 @@ def _sniff_decimal(text: TextFile, sep: str, skip: int) -> str:
     return "," if commas > points else "."
 
 
-def _sniff_stamp_columns(header: list[str]) -> tuple[str | None, str | None, str | None, str]:
+def _sniff_stamp_columns(header: list[str], path: object,
+                         line: int) -> tuple[str | None, str | None, str | None, str]:
     lower = {h.lower(): h for h in header}
     for key in ("timestamp", "datetime", "date_time", "date time", "time stamp", "time_utc"):
         if key in lower:
@@ -209,8 +244,9 @@ def _sniff_stamp_columns(header: list[str]) -> tuple[str | None, str | None, str
         return date, time, None, f"date column '{date}', time column '{time}' (sniffed)"
     if date:
         return None, None, date, f"timestamp column: '{date}' (sniffed)"
-    raise IngestError("<header>", "no date or timestamp column found; declare date_column and "
-                                  "time_column, or timestamp_column, in the dialect")
+    raise IngestError(path, f"no date or timestamp column found among {', '.join(header)}; "
+                            "declare date_column and time_column, or timestamp_column, in the "
+                            "dialect", line=line)
 
 
 def sniff_date_order(first: np.ndarray, second: np.ndarray, third: np.ndarray) -> tuple[str, str]:

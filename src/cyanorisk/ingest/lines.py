@@ -124,7 +124,7 @@ def read_text(path: Path, encoding: str = "utf-8") -> TextFile:
             raise IngestError(
                 path, f"byte 0x{raw[exc.start]:02x} at character {col} is not UTF-8; the file is "
                       "in another encoding: declare it in the dialect, e.g. encoding = 'latin-1'",
-                line=line) from None
+                line=line, byte_in_line=col) from None
     else:
         try:
             raw = raw.decode(encoding).lstrip("\ufeff").encode("utf-8")

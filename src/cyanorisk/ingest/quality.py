@@ -51,11 +51,13 @@ class IngestError(ValueError):
     """A problem with an input file, told in one sentence that names file, line and column."""
 
     def __init__(self, path: object, message: str, line: int | None = None,
-                 column: str | None = None) -> None:
+                 column: str | None = None, byte_in_line: int | None = None) -> None:
         self.path = str(path)
         self.line = line
         self.column = column
         self.reason = message
+        self.byte_in_line = byte_in_line
+        """For an encoding error: 1-based position of the bad byte in its line."""
         where = self.path
         if line is not None:
             where += f", line {line}"

@@ -28,9 +28,10 @@ from cyanorisk.ingest.dialects import (
     WeatherDialect,
     column_plan,
     sniff_layout,
+    sniff_table,
     zone_offset,
 )
-from cyanorisk.ingest.lines import Parsing, RawTable, read_table, read_text
+from cyanorisk.ingest.lines import Parsing, RawTable, TextFile, read_table, read_text
 from cyanorisk.ingest.quality import Flag, IngestError, Ledger, RowAccount, flag_column
 from cyanorisk.ingest.regular import Rows
 from cyanorisk.ingest.stamps import (
@@ -184,7 +185,8 @@ def read_weather(
     regular.fill_gaps(grid, step)
     data = _frame(grid)
     meta = WeatherMeta(
-        files=reports, account=account, rejects=ledger.frame(), interval=step, timezone=timezone,
+        files=reports, account=account, rejects=_with_raw_lines(ledger.frame(), dialect),
+        interval=step, timezone=timezone,
         start=data.index[0] if len(data) else None, end=data.index[-1] if len(data) else None,
         flag_counts={v: _flag_counts(s) for v, s in grid.states.items()},
         ambiguous_resolved=amb, nonexistent_rejected=nonexist,
@@ -194,7 +196,10 @@ def read_weather(
 
 def _parse_file(path: Path, k: int, dialect: WeatherDialect, timezone: str, step_ns: int,
                 bad_rows: str, ledger: Ledger) -> tuple[Rows, FileReport, int, int]:
-    text = read_text(path, dialect.encoding)
+    try:
+        text = read_text(path, dialect.encoding)
+    except IngestError as exc:
+        raise _name_the_column(path, dialect, exc) from None
     layout = sniff_layout(text, dialect)
     d = layout.dialect
     plan, ignored = column_plan(layout, path)
@@ -213,9 +218,9 @@ def _parse_file(path: Path, k: int, dialect: WeatherDialect, timezone: str, step
     values, states = {}, {}
     for col, spec in plan.items():
         values[spec.variable], states[spec.variable] = _parse_values(raw, col, spec, d, problems)
+    t = _to_utc(t, aware, d, timezone, step_ns, problems)
     if bad_rows == "stop" and problems.any():
         raise problems.first_error()
-    t = _to_utc(t, aware, d, timezone, step_ns, problems)
     n_amb, n_non = problems.n_ambiguous, problems.n_nonexistent
     problems.flush(ledger)
     rows = Rows(t, values, states, np.full(len(t), k, dtype=np.int32), raw.line_numbers)
@@ -227,6 +232,23 @@ def _parse_file(path: Path, k: int, dialect: WeatherDialect, timezone: str, step
     report = FileReport(str(path), raw.n_rows + len(raw.bad_lines), resolved,
                         list(layout.assumptions) + notes, ignored)
     return rows, report, n_amb, n_non
+
+
+def _name_the_column(path: Path, dialect: WeatherDialect, exc: IngestError) -> IngestError:
+    """Add the column to an encoding error, found by reading the file leniently."""
+    if exc.line is None or exc.byte_in_line is None:
+        return exc
+    try:
+        raw = path.read_bytes()
+        text = TextFile(path, raw.decode("utf-8", "replace").encode("utf-8"))
+        table = sniff_table(text, dialect.separator, dialect.skip_lines, dialect.decimal)
+        line = raw.split(b"\n")[exc.line - 1]
+        field = line[:exc.byte_in_line - 1].count(table.separator.encode())
+    except (IngestError, IndexError, UnicodeError):
+        return exc
+    if exc.line <= table.skip_lines + 1 or field >= len(table.header):
+        return exc
+    return IngestError(path, exc.reason, line=exc.line, column=table.header[field])
 
 
 class _Problems:
@@ -402,14 +424,31 @@ def _keep_period(rows: Rows, period: tuple | None, timezone: str, paths: list[Pa
         span = pd.to_datetime([rows.t.min(), rows.t.max()], utc=True)
         raise IngestError(", ".join(map(str, paths)),
                           f"all {len(rows.t)} stamps fall outside the requested period "
-                          f"{period[0]} to {period[1]}; the data span {span[0]} to {span[1]} UTC")
+                          f"{_period_text(period)}; the data span {span[0]} to {span[1]} UTC")
     out = ~inside
     for k in np.unique(rows.file[out]):
         sel = out & (rows.file == k)
         ledger.add(str(paths[k]), rows.line[sel], "", [""] * int(sel.sum()), "outside_period",
-                   f"outside the requested period {period[0]} to {period[1]}")
+                   f"outside the requested period {_period_text(period)}")
     account.rejected += int(out.sum())
     return rows.take(inside)
+
+
+def _with_raw_lines(rejects: pd.DataFrame, dialect: WeatherDialect) -> pd.DataFrame:
+    """Fill in the raw text of ledger rows recorded after parsing (duplicates, off-grid, period)."""
+    blank = rejects["raw"] == ""
+    for file in rejects.loc[blank, "file"].unique():
+        text = read_text(Path(file), dialect.encoding)
+        sel = blank & (rejects["file"] == file)
+        rejects.loc[sel, "raw"] = [text.line(int(n)) for n in rejects.loc[sel, "line"]]
+    return rejects
+
+
+def _period_text(period: tuple) -> str:
+    start, end = period
+    if start is None:
+        return f"up to {end}"
+    return f"from {start}" if end is None else f"{start} to {end}"
 
 
 def _bound(value: str | pd.Timestamp | None, timezone: str) -> int | None:

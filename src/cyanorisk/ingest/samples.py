@@ -1,0 +1,519 @@
+"""Laboratory phytoplankton results in, tidy samples out (censoring kept), plus a rejects ledger.
+
+Two shapes of file are read, declared by a :class:`SampleLayout`:
+
+- long: one row per taxon per sample (sample id, dates, taxon, count, unit ...);
+- wide: one row per sample, one column per taxon.
+
+Counts are read as typed (:func:`cyanorisk.ingest.counts.parse_count`); cells per litre are
+converted to cells per millilitre (1 L = 1000 mL, SI). Each raw row ends in the tidy output or in
+the rejects ledger with its line, column, text and reason; repeated records of one sample and
+taxon are merged when identical and resolved by policy (and flagged) when they conflict.
+
+Per-sample totals of cyanobacteria come from :func:`sample_totals` with the configured taxon table.
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from cyanorisk.ingest.counts import CENSOR_ABOVE, CENSOR_BELOW, EXACT, parse_count
+from cyanorisk.ingest.dialects import DATE_ORDERS, sniff_table
+from cyanorisk.ingest.lines import Parsing, read_table, read_text
+from cyanorisk.ingest.quality import IngestError, Ledger, RowAccount
+from cyanorisk.ingest.stamps import distinct, localize, parse_dates, parse_times
+
+CELLS_PER_L_IN_ML = 1000.0
+"""Cells per litre per cell per millilitre: 1 L = 1000 mL (SI)."""
+_UNIT_IN_HEADER = re.compile(r"\s*[\(\[]\s*(cells\s*/\s*m?l|cells\s*per\s*m?l)\s*[\)\]]\s*$", re.I)
+
+
+@dataclass(frozen=True)
+class SampleLayout:
+    """How a lab file is laid out. Column names as in the file's header."""
+
+    shape: str = "long"
+    """'long' (a row per taxon per sample) or 'wide' (a row per sample, a column per taxon)."""
+    separator: str | None = None
+    decimal: str | None = None
+    encoding: str = "utf-8"
+    skip_lines: int | None = None
+    date_order: str | None = None
+    sample_id_column: str | None = None
+    """Without it, a sample is identified by its site and sampling time."""
+    site_column: str | None = None
+    sampled_date_column: str = "sampled"
+    sampled_time_column: str | None = None
+    default_sample_time: str = "10:00"
+    """Local time assumed when no sampling time is given (flagged 'time_assumed')."""
+    reported_date_column: str | None = None
+    depth_column: str | None = None
+    taxon_column: str | None = None
+    count_column: str | None = None
+    unit_column: str | None = None
+    count_unit: str = "cells/mL"
+    """Unit of counts when neither the header nor a unit column says: 'cells/mL' or 'cells/L'."""
+    taxa_columns: tuple[str, ...] | None = None
+    """Wide: the taxon columns; None takes every column not named elsewhere."""
+    biovolume_column: str | None = None
+    chl_a_column: str | None = None
+    microcystin_column: str | None = None
+    comment_column: str | None = None
+    detection_limit_cells_per_ml: float | None = None
+    """What 'ND' (not detected) means [cells mL-1]."""
+    upper_limit_cells_per_ml: float | None = None
+    """What 'TNTC' (too numerous to count) means [cells mL-1]."""
+    duplicates: str = "last"
+    """Conflicting records of one sample and taxon: keep the 'last' in file order, or 'first'."""
+
+    def __post_init__(self) -> None:
+        if self.shape not in ("long", "wide"):
+            raise ValueError("shape must be 'long' or 'wide'")
+        if self.shape == "long" and not (self.taxon_column and self.count_column):
+            raise ValueError("a long layout needs taxon_column and count_column")
+        if self.date_order not in (None, *DATE_ORDERS):
+            raise ValueError(f"date_order must be one of {', '.join(DATE_ORDERS)}")
+        if _unit_factor(self.count_unit) is None:
+            raise ValueError(f"count_unit must be 'cells/mL' or 'cells/L', not {self.count_unit!r}")
+        if self.duplicates not in ("last", "first"):
+            raise ValueError("duplicates must be 'last' or 'first'")
+
+    def named_columns(self) -> set[str]:
+        return {c for c in (self.sample_id_column, self.site_column, self.sampled_date_column,
+                            self.sampled_time_column, self.reported_date_column, self.depth_column,
+                            self.taxon_column, self.count_column, self.unit_column,
+                            self.biovolume_column, self.chl_a_column, self.microcystin_column,
+                            self.comment_column) if c}
+
+
+def _unit_factor(unit: str) -> float | None:
+    """Divisor that takes a count in ``unit`` to cells per millilitre; None if unknown."""
+    u = re.sub(r"\s+", "", unit.lower()).replace("per", "/")
+    return {"cells/ml": 1.0, "cells/l": CELLS_PER_L_IN_ML, "ml": 1.0, "l": CELLS_PER_L_IN_ML,
+            "cells/ml-1": 1.0, "cellsml-1": 1.0, "cellsl-1": CELLS_PER_L_IN_ML}.get(u)
+
+
+@dataclass
+class SamplesMeta:
+    """What :func:`read_samples` read and did."""
+
+    files: list[str]
+    account: RowAccount
+    rejects: pd.DataFrame
+    assumptions: list[str]
+    flag_counts: dict[str, int] = field(default_factory=dict)
+
+    def summary(self) -> dict:
+        reasons = self.rejects["reason"].value_counts().sort_index()
+        return {"files": self.files, "assumptions": self.assumptions,
+                "rows": self.account.as_dict(),
+                "ledger_by_reason": {str(k): int(v) for k, v in reasons.items()},
+                "flags": self.flag_counts}
+
+
+RECORD_COLUMNS = ["site_id", "sample_id", "sampled_at", "reported_at", "depth_m", "taxon",
+                  "cells_per_ml", "censor", "flag", "biovolume_mm3_per_l", "chl_a_ug_per_l",
+                  "microcystin_ug_per_l", "microcystin_censor", "comment", "file", "line"]
+"""Columns of the tidy records: one per sample and taxon (times in UTC)."""
+
+
+def read_samples(paths: str | Path | Sequence[str | Path], layout: SampleLayout, timezone: str, *,
+                 site_id: str | None = None, bad_rows: str = "reject") -> tuple[pd.DataFrame, SamplesMeta]:
+    """Read lab result files into tidy records, one per sample and taxon.
+
+    Parameters
+    ----------
+    paths : path or sequence of paths
+    layout : SampleLayout
+    timezone : str
+        IANA zone of the dates and times in the files.
+    site_id : str, optional
+        Site of every sample when the layout has no site column.
+    bad_rows : {'reject', 'stop'}
+        Unreadable rows go to the ledger, or the first one raises.
+
+    Returns
+    -------
+    data : pandas.DataFrame
+        Columns :data:`RECORD_COLUMNS`; counts in [cells mL-1] with their censor ('=', '<', '>').
+    meta : SamplesMeta
+        Row accounting (balanced), the rejects ledger, assumptions and flag counts.
+    """
+    paths = [Path(p) for p in ([paths] if isinstance(paths, (str, Path)) else paths)]
+    ledger = Ledger()
+    parts, notes = [], []
+    read = 0
+    for path in paths:
+        records, n_rows, said = _read_file(path, layout, timezone, site_id, bad_rows, ledger)
+        parts.append(records)
+        read += n_rows
+        notes += [f"{path.name}: {s}" for s in said]
+    data = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame(columns=RECORD_COLUMNS)
+    rejected = sum(len(p) for p in ledger.parts)
+    before = _raw_rows(data)
+    data, conflicting = _deduplicate(data, layout.duplicates, ledger)
+    kept = _raw_rows(data)
+    gone = before - kept  # rows all of whose records were merged into or superseded by others
+    account = RowAccount(read=read, rejected=rejected, kept=len(kept),
+                         duplicates_conflicting=len(gone & conflicting),
+                         duplicates_identical=len(gone - conflicting))
+    account.check()
+    flags = data["flag"].str.split(",").explode()
+    counts = flags[flags.astype(bool)].value_counts()
+    meta = SamplesMeta([str(p) for p in paths], account, ledger.frame(), notes,
+                       {str(k): int(v) for k, v in counts.items()})
+    return data.drop(columns=["_row"]).reset_index(drop=True), meta
+
+
+def _raw_rows(data: pd.DataFrame) -> set[tuple[str, int]]:
+    """The raw rows behind records (a wide row makes one record per taxon)."""
+    return set(zip(data["file"], data["_row"], strict=True))
+
+
+def _read_file(path: Path, layout: SampleLayout, timezone: str, site_id: str | None, bad_rows: str,
+               ledger: Ledger) -> tuple[pd.DataFrame, int, list[str]]:
+    text = read_text(path, layout.encoding)
+    table = sniff_table(text, layout.separator, layout.skip_lines, layout.decimal)
+    header = table.header
+    for name in sorted(layout.named_columns()):
+        if name not in header:
+            raise IngestError(path, f"the layout names column '{name}' but the header has "
+                                    f"{', '.join(header)}", line=table.skip_lines + 1, column=name)
+    raw = read_table(text, table.skip_lines, Parsing(table.separator, table.decimal, (),
+                                                     string_columns=tuple(header)))
+    cols = {h: _strings(raw.columns[h]) for h in header}
+    n = raw.n_rows
+    problems: list[tuple[int, str, str, str]] = []  # (row, column, reason, message)
+    for line, count in zip(raw.bad_lines, raw.bad_counts, strict=True):
+        ledger.add(str(path), np.array([line]), "", [text.line(int(line))], "field_count",
+                   f"expected {len(header)} fields as in the header, found {count}")
+    sampled, reported, said = _sample_times(cols, layout, timezone, n, problems)
+    if layout.shape == "long":
+        records = _long_records(cols, layout, table.decimal, header, n, problems)
+    else:
+        records = _wide_records(cols, layout, table.decimal, header, n, problems)
+    bad_rows_idx = sorted({p[0] for p in problems})
+    if bad_rows == "stop" and (problems or len(raw.bad_lines)):
+        first = min(problems, key=lambda p: p[0]) if problems else None
+        if first is None or (len(raw.bad_lines) and raw.bad_lines[0] < raw.line_numbers[first[0]]):
+            line = int(raw.bad_lines[0])
+            raise IngestError(path, "the number of fields differs from the header's", line=line)
+        raise IngestError(path, first[3], line=int(raw.line_numbers[first[0]]), column=first[1])
+    seen: set[int] = set()
+    for row, column, reason, message in sorted(problems):
+        if row in seen:
+            continue
+        seen.add(row)
+        line = int(raw.line_numbers[row])
+        ledger.add(str(path), np.array([line]), column, [text.line(line)], reason, message)
+    keep_rows = np.setdiff1d(np.arange(n), bad_rows_idx)
+    records = records[records["_row"].isin(keep_rows)].copy()
+    r = records["_row"].to_numpy()
+    site_values = cols[layout.site_column] if layout.site_column else None
+    records["site_id"] = site_values[r] if site_values is not None else site_id
+    if records["site_id"].isna().any():
+        raise IngestError(path, "no site for the samples: the layout has no site_column and no "
+                                "site was given")
+    if layout.sample_id_column:
+        records["sample_id"] = cols[layout.sample_id_column][r]
+    else:
+        records["sample_id"] = [f"{t:%Y-%m-%dT%H:%M}Z" for t in sampled[r]]
+    records["sampled_at"] = sampled[r]
+    records["reported_at"] = reported[r]
+    records["depth_m"] = (_floats(cols[layout.depth_column], table.decimal)[r]
+                          if layout.depth_column else np.nan)
+    records["comment"] = cols[layout.comment_column][r] if layout.comment_column else ""
+    records["file"] = str(path)
+    records["line"] = raw.line_numbers[r]
+    if said.get("time_assumed") is not None:
+        assumed = said.pop("time_assumed")[r]
+        records.loc[assumed, "flag"] = _join_flag(records.loc[assumed, "flag"], "time_assumed")
+    return records[RECORD_COLUMNS + ["_row"]], n + len(raw.bad_lines), list(said.values())
+
+
+def _strings(col) -> np.ndarray:
+    codes, uniques = distinct(col)
+    return np.asarray(uniques, dtype=object)[codes] if len(codes) else np.array([], dtype=object)
+
+
+def _floats(values: np.ndarray, decimal: str) -> np.ndarray:
+    text = pd.Series(values, dtype=object).str.strip()
+    if decimal == ",":
+        text = text.str.replace(",", ".", regex=False)
+    return pd.to_numeric(text, errors="coerce").to_numpy(dtype=float)
+
+
+def _join_flag(flags: pd.Series, new: str) -> pd.Series:
+    return flags.where(flags == "", flags + ",").astype(object) + new
+
+
+def _sample_times(cols: dict, layout: SampleLayout, timezone: str, n: int,
+                  problems: list) -> tuple[pd.DatetimeIndex, pd.DatetimeIndex, dict]:
+    """Sampling and reporting instants in UTC; problems appended per row."""
+    said: dict = {}
+    date_text = cols[layout.sampled_date_column]
+    codes, uniques = np.unique(date_text.astype(str), return_inverse=True)
+    parsed = parse_dates(list(codes), layout.date_order)
+    if parsed.note:
+        said["order"] = parsed.note
+    days = parsed.days[uniques]
+    for i in np.flatnonzero(np.isnan(days)):
+        problems.append((int(i), layout.sampled_date_column, "bad_date",
+                         f"'{date_text[i]}' is not a date ({parsed.order})"))
+    if layout.sampled_time_column:
+        t_text = cols[layout.sampled_time_column]
+        blank = np.array([not str(x).strip() for x in t_text])
+        tod = parse_times([str(x) for x in t_text])
+        default = parse_times([layout.default_sample_time])[0]
+        for i in np.flatnonzero((tod < 0) & ~blank):
+            problems.append((int(i), layout.sampled_time_column, "bad_time",
+                             f"'{t_text[i]}' is not a time of day; expected HH:MM"))
+        assumed = blank
+        tod = np.where(blank, default, tod)
+    else:
+        assumed = np.ones(n, dtype=bool)
+        tod = np.full(n, parse_times([layout.default_sample_time])[0])
+    said["time_assumed"] = assumed
+    naive = np.where(np.isnan(days) | (tod < 0), np.iinfo(np.int64).min,
+                     np.nan_to_num(days).astype(np.int64) * 86_400_000_000_000 + np.maximum(tod, 0))
+    utc, _, nonexistent = localize(naive, timezone)
+    for i in np.flatnonzero(nonexistent):
+        problems.append((int(i), layout.sampled_time_column or layout.sampled_date_column,
+                         "nonexistent_local_time", f"this local time does not exist in {timezone}"))
+    sampled = pd.DatetimeIndex(utc.view("datetime64[ns]")).tz_localize("UTC")
+    reported = pd.DatetimeIndex(np.full(n, np.datetime64("NaT"), "datetime64[ns]")).tz_localize("UTC")
+    if layout.reported_date_column:
+        r_text = cols[layout.reported_date_column]
+        blank = np.array([not str(x).strip() for x in r_text])
+        r_days = parse_dates([str(x) for x in r_text], parsed.order).days
+        for i in np.flatnonzero(np.isnan(r_days) & ~blank):
+            problems.append((int(i), layout.reported_date_column, "bad_date",
+                             f"'{r_text[i]}' is not a date ({parsed.order})"))
+        r_naive = np.where(np.isnan(r_days), np.iinfo(np.int64).min,
+                           np.nan_to_num(r_days).astype(np.int64) * 86_400_000_000_000)
+        r_utc, _, _ = localize(r_naive, timezone)  # a result counts from the start of its day
+        reported = pd.DatetimeIndex(r_utc.view("datetime64[ns]")).tz_localize("UTC")
+    return sampled, reported, said
+
+
+def _count_cells(values: np.ndarray, factors: np.ndarray, layout: SampleLayout, decimal: str,
+                 column: str | np.ndarray, problems: list, rows: np.ndarray) -> dict[str, list]:
+    out = {"cells_per_ml": [], "censor": [], "flag": []}
+    limits = (layout.detection_limit_cells_per_ml, layout.upper_limit_cells_per_ml)
+    for k, (text, factor, row) in enumerate(zip(values, factors, rows, strict=True)):
+        # limits are in cells/mL; scale them into the column's unit before parsing
+        c = parse_count(text, decimal, *(None if x is None else x * factor for x in limits))
+        col = column if isinstance(column, str) else column[k]
+        if c.reason:
+            problems.append((int(row), col, "bad_count", c.reason))
+        flag = c.flag
+        if factor != 1.0 and c.censor is not None:
+            flag = f"{flag},converted_from_cells_per_l" if flag else "converted_from_cells_per_l"
+        out["cells_per_ml"].append(c.value / factor)
+        out["censor"].append(c.censor)
+        out["flag"].append(flag)
+    return out
+
+
+def _sample_values(cols: dict, layout: SampleLayout, decimal: str, rows: np.ndarray,
+                   problems: list) -> dict[str, np.ndarray]:
+    """Biovolume, chlorophyll-a and microcystin of each row (censoring kept for the toxin)."""
+    out: dict[str, np.ndarray] = {}
+    for key, name in (("biovolume_mm3_per_l", layout.biovolume_column),
+                      ("chl_a_ug_per_l", layout.chl_a_column),
+                      ("microcystin_ug_per_l", layout.microcystin_column)):
+        values = np.full(len(rows), np.nan)
+        censor = np.full(len(rows), None, dtype=object)
+        if name:
+            for k, row in enumerate(rows):
+                c = parse_count(cols[name][row], decimal)
+                if c.reason:
+                    problems.append((int(row), name, "bad_number", c.reason.replace("count", "value")))
+                values[k], censor[k] = c.value, c.censor
+        out[key] = values
+        if key == "microcystin_ug_per_l":
+            out["microcystin_censor"] = censor
+    return out
+
+
+def _long_records(cols: dict, layout: SampleLayout, decimal: str, header: list[str], n: int,
+                  problems: list) -> pd.DataFrame:
+    rows = np.arange(n)
+    factors = np.full(n, _unit_factor(_header_unit(layout.count_column) or layout.count_unit))
+    if layout.unit_column:
+        for i, u in enumerate(cols[layout.unit_column]):
+            if str(u).strip():
+                f = _unit_factor(str(u))
+                if f is None:
+                    problems.append((i, layout.unit_column, "bad_unit",
+                                     f"'{u}' is not a count unit; expected cells/mL or cells/L"))
+                else:
+                    factors[i] = f
+    counts = _count_cells(cols[layout.count_column], factors, layout, decimal, layout.count_column,
+                          problems, rows)
+    taxa = np.array([str(t).strip() for t in cols[layout.taxon_column]], dtype=object)
+    for i in np.flatnonzero(taxa == ""):
+        problems.append((int(i), layout.taxon_column, "no_taxon", "the taxon is blank"))
+    return pd.DataFrame({"_row": rows, "taxon": taxa, **counts,
+                         **_sample_values(cols, layout, decimal, rows, problems)})
+
+
+def _header_unit(name: str | None) -> str | None:
+    m = _UNIT_IN_HEADER.search(name or "")
+    return m.group(1) if m else None
+
+
+def _wide_records(cols: dict, layout: SampleLayout, decimal: str, header: list[str], n: int,
+                  problems: list) -> pd.DataFrame:
+    named = layout.named_columns()
+    taxa_cols = list(layout.taxa_columns) if layout.taxa_columns else [h for h in header
+                                                                      if h not in named]
+    if not taxa_cols:
+        raise IngestError("<layout>", "a wide layout needs at least one taxon column")
+    rows = np.repeat(np.arange(n), len(taxa_cols))
+    column_of = np.tile(np.array(taxa_cols, dtype=object), n)
+    values = np.array([cols[c][r] for r, c in zip(rows, column_of, strict=True)], dtype=object)
+    factor_of = {c: _unit_factor(_header_unit(c) or layout.count_unit) for c in taxa_cols}
+    factors = np.array([factor_of[c] for c in column_of])
+    counts = _count_cells(values, factors, layout, decimal, column_of, problems, rows)
+    taxon = np.array([_UNIT_IN_HEADER.sub("", c).strip() for c in column_of], dtype=object)
+    frame = pd.DataFrame({"_row": rows, "taxon": taxon, **counts})
+    per_row = pd.DataFrame(_sample_values(cols, layout, decimal, np.arange(n), problems))
+    frame = frame.join(per_row, on="_row")
+    # A blank taxon cell in a wide sheet means the taxon was not reported: no record. A row with
+    # no count at all keeps one record without a taxon, so its other results are not lost.
+    reported = frame["censor"].notna() | frame["_row"].isin([p[0] for p in problems])
+    first_of_row = ~frame["_row"].duplicated()
+    empty_row = ~reported.groupby(frame["_row"]).transform("any")
+    frame.loc[empty_row & first_of_row, "taxon"] = ""
+    return frame[reported | (empty_row & first_of_row)]
+
+
+def _deduplicate(data: pd.DataFrame, policy: str,
+                 ledger: Ledger) -> tuple[pd.DataFrame, set[tuple[str, int]]]:
+    """Merge identical records of one sample and taxon; resolve conflicting ones by policy.
+
+    Returns the kept records and the raw rows of the superseded conflicting ones.
+    """
+    key = ["site_id", "sample_id", "taxon"]
+    same_key = data.duplicated(key, keep=False)
+    if data.empty or not same_key.any():
+        return data, set()
+    compare = ["sampled_at", "cells_per_ml", "censor", "biovolume_mm3_per_l", "chl_a_ug_per_l",
+               "microcystin_ug_per_l"]
+    keep = "last" if policy == "last" else "first"
+    winners = data[same_key].drop_duplicates(key, keep=keep)
+    merged = data[same_key].merge(winners[key + compare + ["file", "line"]], on=key,
+                                  suffixes=("", "_kept"), how="left")
+    merged.index = data.index[same_key]
+    identical = np.ones(len(merged), dtype=bool)
+    for c in compare:
+        a, b = merged[c], merged[f"{c}_kept"]
+        identical &= ((a == b) | (a.isna() & b.isna())).to_numpy()
+    is_winner = merged.index.isin(winners.index)
+    losers = merged[~is_winner]
+    conflicting = losers[~identical[~is_winner]]
+    for _, row in conflicting.iterrows():
+        ledger.add(row["file"], np.array([row["line"]]), "", [""], "duplicate_conflict",
+                   f"same sample and taxon as {Path(row['file_kept']).name} line "
+                   f"{row['line_kept']} with other values; that record was kept")
+    out = data.drop(index=losers.index)
+    conflicted_keys = conflicting[key].drop_duplicates()
+    if len(conflicted_keys):
+        hit = out.merge(conflicted_keys, on=key, how="left", indicator=True)["_merge"] == "both"
+        out.loc[hit.to_numpy(), "flag"] = _join_flag(out.loc[hit.to_numpy(), "flag"],
+                                                    "duplicate_conflict")
+    return out, _raw_rows(conflicting)
+
+
+@dataclass(frozen=True)
+class Taxon:
+    """What the taxon table says of one taxon."""
+
+    cyanobacterium: bool
+    toxin_producer: bool = False
+
+
+def lookup_taxon(name: str, table: Mapping[str, Taxon]) -> Taxon | None:
+    """The table's entry for a taxon: exact name (case-insensitive), else its genus (first word)."""
+    lower = {k.lower(): v for k, v in table.items()}
+    key = name.strip().lower()
+    if key in lower:
+        return lower[key]
+    genus = key.split(" ")[0] if key else ""
+    return lower.get(genus)
+
+
+def sample_totals(records: pd.DataFrame, taxa: Mapping[str, Taxon]) -> pd.DataFrame:
+    """One row per sample: the total count of cyanobacteria and the sample-level results.
+
+    Censoring of the total (documented rule):
+
+    - the total is the sum of the cyanobacterial taxa counted exactly ('=');
+    - if every cyanobacterial part is censored below ('<'), the total is censored below at the
+      sum of their limits (the true total is less than that);
+    - if some parts are exact and others censored below, the censored parts count as zero and
+      the total stays exact: the true total lies between the sum and the sum plus the limits,
+      which ``cyano_upper_cells_per_ml`` records;
+    - if any part is censored above ('>'), the total is censored above at the sum of all parts
+      (the true total is at least that);
+    - a sample with no cyanobacterial taxon reported has a total of 0, exact, only when the
+      sample lists some taxon; taxa missing from the table are not counted and are flagged.
+
+    Returns columns: site_id, sample_id, sampled_at, reported_at, cyano_cells_per_ml,
+    cyano_censor, cyano_upper_cells_per_ml, toxic_cells_per_ml, biovolume_mm3_per_l,
+    chl_a_ug_per_l, microcystin_ug_per_l, microcystin_censor, n_taxa, unknown_taxa.
+    """
+    if records.empty:
+        return pd.DataFrame(columns=["site_id", "sample_id", "sampled_at", "reported_at",
+                                     "cyano_cells_per_ml", "cyano_censor"])
+    info = {t: lookup_taxon(t, taxa) for t in records["taxon"].unique()}
+    r = records.assign(
+        _cyano=records["taxon"].map(lambda t: bool(info[t] and info[t].cyanobacterium)),
+        _toxic=records["taxon"].map(lambda t: bool(info[t] and info[t].toxin_producer)),
+        _unknown=records["taxon"].map(lambda t: bool(t) and info[t] is None),
+        _counted=records["censor"].notna(),
+    )
+    exact = r["censor"] == EXACT
+    below = r["censor"] == CENSOR_BELOW
+    above = r["censor"] == CENSOR_ABOVE
+    v = r["cells_per_ml"].fillna(0.0)
+    r = r.assign(_exact=np.where(r["_cyano"] & exact, v, 0.0),
+                 _limit=np.where(r["_cyano"] & below, v, 0.0),
+                 _above=np.where(r["_cyano"] & above, v, 0.0),
+                 _n_exact=(r["_cyano"] & exact).astype(int),
+                 _n_below=(r["_cyano"] & below).astype(int),
+                 _n_above=(r["_cyano"] & above).astype(int),
+                 _toxic_v=np.where(r["_toxic"] & (exact | above), v, 0.0),
+                 _unknown_name=np.where(r["_unknown"], r["taxon"], None))
+    g = r.groupby(["site_id", "sample_id"], sort=False)
+    out = g.agg(sampled_at=("sampled_at", "first"), reported_at=("reported_at", "first"),
+                exact=("_exact", "sum"), limit=("_limit", "sum"), above=("_above", "sum"),
+                n_exact=("_n_exact", "sum"), n_below=("_n_below", "sum"),
+                n_above=("_n_above", "sum"), toxic_cells_per_ml=("_toxic_v", "sum"),
+                biovolume_mm3_per_l=("biovolume_mm3_per_l", "max"),
+                chl_a_ug_per_l=("chl_a_ug_per_l", "max"),
+                microcystin_ug_per_l=("microcystin_ug_per_l", "max"),
+                microcystin_censor=("microcystin_censor", "first"),
+                n_counted=("_counted", "sum"),
+                n_taxa=("taxon", lambda s: int((s != "").sum())),
+                unknown_taxa=("_unknown_name", lambda s: ", ".join(sorted({x for x in s if x}))),
+                ).reset_index()
+    all_below = (out["n_below"] > 0) & (out["n_exact"] == 0) & (out["n_above"] == 0)
+    any_above = out["n_above"] > 0
+    out["cyano_cells_per_ml"] = np.where(all_below, out["limit"],
+                                         out["exact"] + out["above"])
+    out["cyano_censor"] = np.where(any_above, CENSOR_ABOVE, np.where(all_below, CENSOR_BELOW, EXACT))
+    out["cyano_upper_cells_per_ml"] = np.where(any_above, np.inf, out["exact"] + out["limit"])
+    nothing = out["n_counted"] == 0  # no count at all: the total is unknown, not zero
+    out.loc[nothing, ["cyano_cells_per_ml", "cyano_upper_cells_per_ml", "toxic_cells_per_ml"]] = np.nan
+    out.loc[nothing, "cyano_censor"] = None
+    out = out.drop(columns=["exact", "limit", "above", "n_exact", "n_below", "n_above", "n_counted"])
+    return out.sort_values(
+        ["site_id", "sampled_at"], ignore_index=True)
