@@ -166,7 +166,8 @@ def test_embedded_config_equals_file_config_except_root(demo, tmp_path, monkeypa
         assert embedded.site(e.id) is e
         assert e.weather.files == ()  # nothing matches in an empty working directory
         no_files = dataclasses.replace(f.weather, files=())
-        assert e == dataclasses.replace(f, weather=no_files)
+        no_samples = dataclasses.replace(f.samples, files=())
+        assert e == dataclasses.replace(f, weather=no_files, samples=no_samples)
 
 
 def test_embedded_demo_files_are_looked_for_in_the_working_directory(tmp_path, monkeypatch):
@@ -174,6 +175,9 @@ def test_embedded_demo_files_are_looked_for_in_the_working_directory(tmp_path, m
     folder.mkdir(parents=True)
     for name in ("tallowbark_aws_2015.txt", "tallowbark_aws_2014.txt", "other.txt"):
         (folder / name).write_text("x\n", encoding="utf-8")
+    lab = tmp_path / "demo_data" / "tallowbark" / "lab"
+    lab.mkdir(parents=True)
+    (lab / "sheet.csv").write_text("x\n", encoding="utf-8")
     monkeypatch.chdir(tmp_path)
     cfg = load_config(None, check_files=True)
     assert cfg.sites[0].weather.files == (
@@ -260,7 +264,7 @@ def test_period_accepts_toml_dates_and_strings(tmp_path):
                      id="unknown-top-level-key"),
         pytest.param({"ingest": 'speed = "fast"'}, "ingest.speed", "valid keys here: bad_rows",
                      id="unknown-ingest-key"),
-        pytest.param({"site": 'depth_m = 12'}, "sites[0].depth_m", "valid keys here: id, interval, name",
+        pytest.param({"site": 'depth_m = 12'}, "sites[0].depth_m", "valid keys here: alerts, drivers, id",
                      id="unknown-site-key"),
         pytest.param({"weather": 'format = "csv"'}, "sites[0].weather.format",
                      "valid keys here: dialect, files, period", id="unknown-weather-key"),

@@ -37,21 +37,52 @@ def _config(args: argparse.Namespace, check_files: bool = True) -> Config:
     return load_config(args.config, check_files=check_files)
 
 
+def _ingest_all(config: Config) -> list[tuple]:
+    from cyanorisk.ingest.sites import ingest_site_samples, ingest_site_weather, write_site_ingest
+
+    done = []
+    for site in progress(config.sites, len(config.sites), "ingest"):
+        weather = ingest_site_weather(config, site)
+        samples = ingest_site_samples(config, site, weather.meta)
+        done.append((weather, samples))
+    return [(w, s, [str(p) for p in write_site_ingest(config, w, s)]) for w, s in done]
+
+
 def cmd_ingest(args: argparse.Namespace) -> int:
-    """Ingest every site's weather files; write clean series and rejects; print the summary."""
-    from cyanorisk.ingest.sites import ingest_site_weather, write_site_weather
+    """Ingest every site's weather and lab files; write clean tables and rejects; summarise."""
     from cyanorisk.report.ingest_summary import summary_data, summary_text
 
-    config = _config(args)
-    results = [ingest_site_weather(config, site)
-               for site in progress(config.sites, len(config.sites), "ingest")]
-    written = {r.site.id: [str(p) for p in write_site_weather(config, r)] for r in results}
+    results = _ingest_all(_config(args))
     if args.json:
-        print(json.dumps([summary_data(r.site, r.meta, written[r.site.id]) for r in results],
-                         indent=2, default=str))
+        print(json.dumps([summary_data(w, s, out) for w, s, out in results], indent=2, default=str))
     else:
-        for r in results:
-            print(summary_text(r.site, r.meta, written[r.site.id]))
+        for w, s, out in results:
+            print(summary_text(w, s, out))
+    return 0
+
+
+def cmd_features(args: argparse.Namespace) -> int:
+    """Ingest, build the daily drivers, align the lab results: write the training table."""
+    from cyanorisk.atomic import write_group
+    from cyanorisk.ingest.sites import site_paths
+    from cyanorisk.training import label_balance, site_training_table
+
+    config = _config(args)
+    for weather, samples, _ in _ingest_all(config):
+        site = weather.site
+        table = site_training_table(site, weather.data, samples.totals if samples else None)
+        target = site_paths(config, site.id)["training"]
+        writers = {target: lambda tmp, t=table: t.to_parquet(tmp, engine="pyarrow")}
+        if args.csv:
+            writers[target.with_suffix(".csv")] = lambda tmp, t=table: t.to_csv(tmp)
+        written = write_group(writers)
+        print(f"{site.name} ({site.id}): training table of {table.shape[0]:,} issue days x "
+              f"{table.shape[1]} columns")
+        for col, counts in label_balance(table).items():
+            print(f"  {col}: {counts['1']:,} reached, {counts['0']:,} not reached, "
+                  f"{counts['missing']:,} without a sample in the window")
+        for path in written:
+            print(f"  wrote {path}")
     return 0
 
 
@@ -84,10 +115,12 @@ def cmd_demo(args: argparse.Namespace) -> int:
         raise ConfigError(config.path, "demo", "missing; the demo needs a [demo] table")
     years = args.years or config.demo.years
     files = write_demo(config.demo.out_dir, years, config.demo.seed)
-    print(f"demo: wrote {len(files.weather)} weather export(s) for Tallowbark Reservoir "
-          f"({years} years) under {config.demo.out_dir}")
+    print(f"demo: wrote {len(files.weather)} weather export(s) and {len(files.samples)} lab "
+          f"sheet(s) for Tallowbark Reservoir ({years} years) under {config.demo.out_dir}")
     args.json = False
-    return cmd_ingest(args)
+    args.csv = False
+    cmd_ingest(args)
+    return cmd_features(args)
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -108,8 +141,11 @@ def build_parser() -> argparse.ArgumentParser:
     p = command("demo", cmd_demo, "generate the demo reservoir's data and run the job on it",
                 config_required=False)
     p.add_argument("--years", type=int, default=None, help="years of data to generate")
-    p = command("ingest", cmd_ingest, "clean every site's weather files; write series and rejects")
+    p = command("ingest", cmd_ingest, "clean every site's weather and lab files; write them and "
+                                      "the rejects")
     p.add_argument("--json", action="store_true", help="print the summary as JSON")
+    p = command("features", cmd_features, "build the daily drivers and the training table")
+    p.add_argument("--csv", action="store_true", help="also write the table as CSV")
     command("check", cmd_check, "validate the configuration and the layout of every input file")
     return parser
 

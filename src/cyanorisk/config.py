@@ -14,8 +14,11 @@ Relative paths are read from ``root``, itself relative to the configuration file
 
 from __future__ import annotations
 
+import dataclasses
 import glob
 import tomllib
+import types
+import typing
 import zoneinfo
 from dataclasses import dataclass, field
 from importlib import resources
@@ -24,6 +27,7 @@ from typing import Any
 
 import pandas as pd
 
+from cyanorisk.features import FeatureSettings
 from cyanorisk.ingest.dialects import (
     DATE_ORDERS,
     DEFAULT_MISSING,
@@ -32,7 +36,10 @@ from cyanorisk.ingest.dialects import (
     WeatherDialect,
     zone_offset,
 )
+from cyanorisk.ingest.samples import SampleLayout, Taxon
 from cyanorisk.ingest.weather import BAD_ROW_POLICIES, DUPLICATE_POLICIES, OFF_GRID_POLICIES
+from cyanorisk.levels import SCHEMES, Scheme
+from cyanorisk.levels import scheme as preset_scheme
 from cyanorisk.units import conversion
 
 EMBEDDED_DEMO = "demo.toml"
@@ -70,6 +77,17 @@ class WeatherSource:
 
 
 @dataclass(frozen=True)
+class SampleSource:
+    """Where a site's lab results are and how they are laid out."""
+
+    patterns: tuple[str, ...]
+    files: tuple[Path, ...]
+    layout: str
+    lab_delay_days: float = 3.0
+    """Days from sampling until a result is known, when the lab gives no reported date."""
+
+
+@dataclass(frozen=True)
 class Site:
     """One water body."""
 
@@ -80,6 +98,16 @@ class Site:
     """Intended use: 'drinking' or 'recreation'."""
     interval: pd.Timedelta
     weather: WeatherSource
+    samples: SampleSource | None = None
+    drivers: FeatureSettings = field(default_factory=FeatureSettings)
+    scheme: str = "who1999_drinking"
+    """Key of the alert-level scheme (a preset of :mod:`cyanorisk.levels`)."""
+    measures: tuple[str, ...] | None = None
+    """Which of the scheme's measures to use (None: all the samples carry)."""
+
+    def alert_scheme(self) -> Scheme:
+        """The site's scheme, restricted to its measures."""
+        return preset_scheme(self.scheme).using(self.measures)
 
 
 @dataclass(frozen=True)
@@ -104,6 +132,8 @@ class Config:
     ingest: IngestSettings
     dialects: dict[str, WeatherDialect]
     sites: tuple[Site, ...]
+    layouts: dict[str, SampleLayout] = field(default_factory=dict)
+    taxa: dict[str, Taxon] = field(default_factory=dict)
     demo: DemoSettings | None = None
     raw: dict[str, Any] = field(default_factory=dict, repr=False)
 
@@ -148,11 +178,12 @@ def load_config(path: str | Path | None = None, *, check_files: bool = True) -> 
     return _Reader(label, base, path is None).config(raw, check_files)
 
 
-_TOP = {"root", "data_dir", "reports_dir", "models_dir", "ingest", "dialects", "sites", "demo"}
+_TOP = {"root", "data_dir", "reports_dir", "models_dir", "ingest", "dialects", "sample_layouts",
+        "taxa", "sites", "demo"}
 _DIALECT = {"separator", "decimal", "encoding", "skip_lines", "date_column", "time_column",
             "timestamp_column", "date_order", "stamp_zone", "stamp_marks", "missing", "columns",
             "other_columns", "coerce_year"}
-_SITE = {"id", "name", "timezone", "use", "interval", "weather"}
+_SITE = {"id", "name", "timezone", "use", "interval", "weather", "samples", "drivers", "alerts"}
 
 
 class _Reader:
@@ -203,6 +234,11 @@ class _Reader:
             duplicates=self.choice(ing, "duplicates", DUPLICATE_POLICIES, "ingest", "last"))
         dialects = {name: self.dialect(table, f"dialects.{name}")
                     for name, table in self.get(raw, "dialects", dict, "", {}).items()}
+        layouts = {name: self.record(table, SampleLayout, f"sample_layouts.{name}")
+                   for name, table in self.get(raw, "sample_layouts", dict, "", {}).items()}
+        taxa = {name: self.record(table, Taxon, f"taxa.{name}")
+                for name, table in self.get(raw, "taxa", dict, "", {}).items()}
+        self.layouts = layouts
         sites_raw = self.get(raw, "sites", list, "")
         if not sites_raw:
             raise self.fail("sites", "no site is configured; add a [[sites]] table")
@@ -224,7 +260,53 @@ class _Reader:
             data_dir=self.path(self.get(raw, "data_dir", str, "", "work")),
             reports_dir=self.path(self.get(raw, "reports_dir", str, "", "reports")),
             models_dir=self.path(self.get(raw, "models_dir", str, "", "models")),
-            ingest=ingest, dialects=dialects, sites=sites, demo=demo, raw=raw)
+            ingest=ingest, dialects=dialects, sites=sites, demo=demo, raw=raw,
+            layouts=layouts, taxa=taxa)
+
+    def record(self, table: Any, cls: type, where: str) -> Any:
+        """Build a settings dataclass from a table, checking each key against its fields."""
+        if not isinstance(table, dict):
+            raise self.fail(where, f"expected a table, got {type(table).__name__}")
+        hints = typing.get_type_hints(cls)
+        names = {f.name for f in dataclasses.fields(cls)}
+        self.keys(table, names, where)
+        values = {k: self.typed(v, hints[k], f"{where}.{k}") for k, v in table.items()}
+        try:
+            return cls(**values)
+        except (TypeError, ValueError) as exc:
+            raise self.fail(where, str(exc.args[0] if exc.args else exc)) from None
+
+    def typed(self, value: Any, hint: Any, key: str) -> Any:
+        """Check ``value`` against a type hint (str, int, float, bool, tuples, optionals)."""
+        options = typing.get_args(hint) if isinstance(hint, types.UnionType) else (hint,)
+        for option in options:
+            if option is type(None):
+                continue
+            origin = typing.get_origin(option)
+            if origin is tuple and isinstance(value, list):
+                inner = typing.get_args(option)[0]
+                return tuple(self.typed(v, inner, key) for v in value)
+            if option is float and isinstance(value, (int, float)) and not isinstance(value, bool):
+                return float(value)
+            if option in (str, int, bool) and type(value) is option:
+                return value
+        wanted = " or ".join("a list" if typing.get_origin(o) is tuple else getattr(o, "__name__", str(o))
+                             for o in options if o is not type(None))
+        raise self.fail(key, f"expected {wanted}, got {type(value).__name__} {value!r}")
+
+    def files(self, patterns: Any, key: str, check_files: bool) -> tuple[tuple[str, ...], tuple[Path, ...]]:
+        """Resolve file patterns; with ``check_files`` each must match something."""
+        if not isinstance(patterns, list):
+            raise self.fail(key, "expected a list of file paths or patterns")
+        found_all: list[Path] = []
+        for pattern in patterns:
+            if not isinstance(pattern, str):
+                raise self.fail(key, "expected a list of file paths or patterns")
+            found = sorted(Path(p) for p in glob.glob(str(self.path(pattern))))
+            if check_files and not found:
+                raise self.fail(key, f"no file matches {pattern!r} (looked in {self.root})")
+            found_all.extend(found)
+        return tuple(patterns), tuple(found_all)
 
     def path(self, text: str) -> Path:
         p = Path(text)
@@ -300,30 +382,47 @@ class _Reader:
         w = self.get(table, "weather", dict, where)
         wk = f"{where}.weather"
         self.keys(w, {"files", "dialect", "period"}, wk)
-        patterns = self.get(w, "files", list, wk)
         dialect = self.get(w, "dialect", str, wk)
         if dialect not in dialects:
             raise self.fail(f"{wk}.dialect", f"{dialect!r} is not defined under [dialects]; "
                                              f"defined: {', '.join(dialects) or 'none'}")
-        files: list[Path] = []
-        for pattern in patterns:
-            if not isinstance(pattern, str):
-                raise self.fail(f"{wk}.files", "expected a list of file paths or patterns")
-            found = sorted(Path(p) for p in glob.glob(str(self.path(pattern))))
-            if check_files and not found:
-                raise self.fail(f"{wk}.files", f"no file matches {pattern!r} "
-                                                f"(looked in {self.root})")
-            files.extend(found)
+        patterns, files = self.files(self.get(w, "files", list, wk), f"{wk}.files", check_files)
         period = None
         if "period" in w:
             pt = self.get(w, "period", dict, wk)
             self.keys(pt, {"start", "end"}, f"{wk}.period")
             period = (self._date(pt, "start", f"{wk}.period"), self._date(pt, "end", f"{wk}.period"))
+        samples = None
+        if "samples" in table:
+            sk = f"{where}.samples"
+            sm = self.get(table, "samples", dict, where)
+            self.keys(sm, {"files", "layout", "lab_delay_days"}, sk)
+            layout = self.get(sm, "layout", str, sk)
+            if layout not in self.layouts:
+                raise self.fail(f"{sk}.layout", f"{layout!r} is not defined under [sample_layouts]; "
+                                                f"defined: {', '.join(self.layouts) or 'none'}")
+            s_patterns, s_files = self.files(self.get(sm, "files", list, sk), f"{sk}.files",
+                                             check_files)
+            delay = self.typed(sm.get("lab_delay_days", 3.0), float, f"{sk}.lab_delay_days")
+            samples = SampleSource(s_patterns, s_files, layout, delay)
+        drivers = self.record(self.get(table, "drivers", dict, where, {}), FeatureSettings,
+                              f"{where}.drivers")
+        alerts = self.get(table, "alerts", dict, where, {})
+        self.keys(alerts, {"scheme", "measures"}, f"{where}.alerts")
+        scheme = self.choice(alerts, "scheme", tuple(SCHEMES), f"{where}.alerts", "who1999_drinking")
+        measures = None
+        if "measures" in alerts:
+            measures = self.typed(alerts["measures"], tuple[str, ...], f"{where}.alerts.measures")
+            try:
+                preset_scheme(scheme).using(measures)
+            except ValueError as exc:
+                raise self.fail(f"{where}.alerts.measures", str(exc)) from None
         return Site(
             id=self.get(table, "id", str, where), name=self.get(table, "name", str, where),
             timezone=tz, use=self.choice(table, "use", USES, where, "drinking"),
             interval=interval,
-            weather=WeatherSource(tuple(patterns), tuple(files), dialect, period))
+            weather=WeatherSource(tuple(patterns), tuple(files), dialect, period),
+            samples=samples, drivers=drivers, scheme=scheme, measures=measures)
 
     def _date(self, table: dict, key: str, where: str) -> str | None:
         value = table.get(key)

@@ -1,6 +1,9 @@
 """The demo scenario: Tallowbark Reservoir, a fictitious water-supply reservoir above the
 fictitious town of Merrin Falls, in a temperate southern-hemisphere climate (warm in January).
 
+The lab results follow a simple simulation driven by the same weather (:func:`simulate_cyanobacteria`)
+so that the bloom drivers carry real signal; they are typed the way people type them.
+
 Everything here is invented for the demo and deterministic by seed. The weather is simulated on
 a half-hourly UTC grid, then exported the way a real automatic weather station's logger would
 write it, with the usual quirks (see ``../shared/DESIGN.md``): local wall-clock time with daylight
@@ -33,6 +36,8 @@ class DemoFiles:
 
     weather: list[Path]
     """One export per year, in time order."""
+    samples: list[Path]
+    """Lab result sheets: an older lab reporting cells/L, then the current one in cells/mL."""
 
 
 def simulate_weather(years: int, seed: int) -> pd.DataFrame:
@@ -151,6 +156,137 @@ def logger_export(weather: pd.DataFrame, seed: int) -> pd.DataFrame:
     return out
 
 
+# ---------------------------------------------------------------------------------------------
+# Lab results
+# ---------------------------------------------------------------------------------------------
+
+TAXA_SHARES = {
+    "Microcystis aeruginosa": 0.55,
+    "Dolichospermum circinale": 0.30,
+    "Aphanizomenon ovalisporum": 0.15,
+}
+"""How the simulated cyanobacterial total splits among taxa (on average)."""
+OTHER_TAXA = {"Aulacoseira granulata": 1500.0, "Cryptomonas ovata": 400.0}
+"""Non-cyanobacterial taxa and their typical counts [cells mL-1]."""
+
+
+def simulate_cyanobacteria(weather: pd.DataFrame, seed: int) -> pd.Series:
+    """Daily cyanobacterial total [cells mL-1] driven by the demo weather.
+
+    Net growth on the log scale: growth rises with water temperature from nothing at 12 degC
+    towards 27.5 degC (the Microcystis optimum, J. Plankton Res. 2018, REFERENCES.md), slowed as
+    the population nears a cap (Gompertz form), so that net in-situ growth stays within about
+    0.1-0.4 per day (field literature, from memory); warm calm days (daily wind below 2.3 m/s,
+    water above 19 degC) add surface accumulation (below about 2-3 m/s, Webster & Hutchinson
+    1994, from memory); losses rise with wind mixing above 2 m/s and flushing by rain. A demo
+    model of plausible dynamics, not a validated one.
+    """
+    rng = np.random.default_rng(seed + 7)
+    local = weather.tz_convert(TIMEZONE)
+    daily = local.resample("D").agg({"water_temp_c": "mean", "wind_speed_ms": "mean",
+                                     "rain_mm": "sum"})
+    temp = daily["water_temp_c"].to_numpy()
+    wind = daily["wind_speed_ms"].to_numpy()
+    rain = daily["rain_mm"].to_numpy()
+    growth = 0.8 * np.clip((temp - 12.0) / (27.5 - 12.0), 0.0, 1.0) ** 1.5
+    calm_warm = 0.25 * ((wind < 2.3) & (temp > 19.0))
+    loss = 0.02 + 0.10 * np.clip(wind - 2.0, 0.0, None) + 0.01 * rain
+    log_n = np.empty(len(daily))
+    log_n[0] = np.log(50.0)
+    cap = np.log(3_000_000.0)
+    for d in range(1, len(daily)):
+        step = (growth[d - 1] * (1 - log_n[d - 1] / cap) + calm_warm[d - 1] - loss[d - 1]
+                + rng.normal(0, 0.08))
+        log_n[d] = np.clip(log_n[d - 1] + step, np.log(20.0), cap)
+    return pd.Series(np.exp(log_n), index=daily.index, name="cyano_cells_per_ml")
+
+
+def _typed(value: float, rng: np.random.Generator, limit: float = 100.0) -> str:
+    """A count as a person might type it (``limit``: the detection limit in the same unit)."""
+    if value < limit:
+        return rng.choice([f"<{limit:.0f}", f"< {limit:.0f}", "ND", "n.d.", f"<{limit:.0f}"])
+    v = float(f"{value:.2g}")
+    style = rng.random()
+    if style < 0.55:
+        return f"{v:.0f}"
+    if style < 0.80:
+        return f"{v:,.0f}"
+    if style < 0.92:
+        return f"{v:.1E}".replace("E+0", "E")
+    if style < 0.96:
+        return f"{v:,.0f}".replace(",", " ")
+    return f"{v:.0f}".replace("0", "O", 1) if "0" in f"{v:.0f}"[1:] else f"{v:.0f}"
+
+
+def lab_sheets(weather: pd.DataFrame, seed: int) -> dict[str, pd.DataFrame]:
+    """Lab result sheets (wide: one row per sample), as typed; keyed by file stem.
+
+    Weekly samples (Tuesdays) from November to April, monthly (first Tuesday) otherwise, and an
+    extra sample two days after a count above 5,000 cells/mL; results reported two to six days
+    after sampling (sometimes without a reported date). Until mid-2017 an older lab reports in
+    cells per litre.
+    """
+    rng = np.random.default_rng(seed + 11)
+    truth = simulate_cyanobacteria(weather, seed)
+    days = truth.index
+    warm = days.month.isin([11, 12, 1, 2, 3, 4])
+    tuesday = days.day_of_week == 1
+    routine = tuesday & (warm | (days.day <= 7))
+    dates = list(days[routine])
+    for d, v in truth.items():
+        if v > 5_000 and not routine[days.get_loc(d)] and rng.random() < 0.12:
+            dates.append(d)
+    dates = sorted(set(dates))
+    rows = []
+    for k, d in enumerate(dates):
+        total = truth[d] * rng.lognormal(0, 0.3)
+        shares = rng.dirichlet([8 * s for s in TAXA_SHARES.values()])
+        cells = dict(zip(TAXA_SHARES, total * shares, strict=True))
+        others = {t: m * rng.lognormal(0, 0.5) for t, m in OTHER_TAXA.items()}
+        toxic = cells["Microcystis aeruginosa"] + cells["Dolichospermum circinale"]
+        chl = 2.0 + total * 1.5e-4 * rng.lognormal(0, 0.2)
+        mc = toxic * 1.2e-5 * rng.lognormal(0, 0.4)
+        sampled = pd.Timestamp(d.date()) + pd.Timedelta(hours=int(rng.integers(8, 12)),
+                                                        minutes=int(rng.choice([0, 15, 30, 45])))
+        delay = int(rng.integers(2, 7))
+        rows.append({"Sample": f"TB{d:%y%m%d}{chr(65 + k % 3)}", "Site": SITE_ID,
+                     "Date Sampled": f"{sampled:%d/%m/%Y}",
+                     "Time": f"{sampled:%H:%M}" if rng.random() > 0.1 else "",
+                     "Date Reported": (f"{sampled + pd.Timedelta(days=delay):%d/%m/%Y}"
+                                       if rng.random() > 0.08 else ""),
+                     "Depth (m)": "0.5", "_cells": {**cells, **others},
+                     "Chl-a (ug/L)": f"{chl:.1f}",
+                     "Microcystin (ug/L)": "<0.1" if mc < 0.1 else f"{mc:.2f}",
+                     "Comments": ("surface scum near the offtake" if total > 100_000
+                                  and rng.random() < 0.3 else ""),
+                     "_when": sampled})
+    sheets: dict[str, pd.DataFrame] = {}
+    switch = pd.Timestamp("2017-07-01")
+    for stem, unit, factor, part in (
+            ("tallowbark_lab_old", "cells/L", 1000.0, [r for r in rows if r["_when"] < switch]),
+            ("tallowbark_lab", "cells/mL", 1.0, [r for r in rows if r["_when"] >= switch])):
+        if not part:
+            continue
+        table = []
+        for r in part:
+            row = {k: v for k, v in r.items() if not k.startswith("_")}
+            for taxon, v in r["_cells"].items():
+                row[f"{taxon} ({unit})"] = _typed(v * factor, rng, 100.0 * factor)
+            table.append(row)
+        frame = pd.DataFrame(table)
+        # hand-typed slips and a sample entered twice
+        slips = rng.choice(len(frame), size=min(3, len(frame)), replace=False)
+        taxon_cols = [c for c in frame.columns if "(cells/" in c]
+        frame.iloc[slips[0], frame.columns.get_loc(taxon_cols[0])] = "see comment"
+        if len(slips) > 1:
+            frame.iloc[slips[1], frame.columns.get_loc("Date Sampled")] = "31/02/" + \
+                frame.iloc[slips[1]]["Date Sampled"][-4:]
+        if len(slips) > 2:
+            frame = pd.concat([frame, frame.iloc[[slips[2]]]], ignore_index=True)
+        sheets[stem] = frame
+    return sheets
+
+
 def write_demo(out_dir: Path, years: int, seed: int) -> DemoFiles:
     """Simulate the demo reservoir and write its station exports, one file per calendar year.
 
@@ -158,7 +294,8 @@ def write_demo(out_dir: Path, years: int, seed: int) -> DemoFiles:
     """
     weather_dir = Path(out_dir) / SITE_ID / "weather"
     weather_dir.mkdir(parents=True, exist_ok=True)
-    export = logger_export(simulate_weather(years, seed), seed)
+    weather = simulate_weather(years, seed)
+    export = logger_export(weather, seed)
     files = []
     year = export["_day"].dt.year
     for y in sorted(year.unique()):
@@ -171,4 +308,15 @@ def write_demo(out_dir: Path, years: int, seed: int) -> DemoFiles:
             part[EXPORT_COLUMNS].to_csv(fh, sep="\t", index=False, lineterminator="\n")
         tmp.replace(path)
         files.append(path)
-    return DemoFiles(files)
+    lab_dir = Path(out_dir) / SITE_ID / "lab"
+    lab_dir.mkdir(parents=True, exist_ok=True)
+    lab_files = []
+    for stem, frame in lab_sheets(weather, seed).items():
+        path = lab_dir / f"{stem}.csv"
+        tmp = path.with_suffix(".tmp")
+        with tmp.open("w", encoding="utf-8", newline="\n") as fh:
+            fh.write("Merrin Falls Water laboratory - phytoplankton enumeration\n")
+            frame.to_csv(fh, index=False, lineterminator="\n")
+        tmp.replace(path)
+        lab_files.append(path)
+    return DemoFiles(files, lab_files)

@@ -2,22 +2,27 @@
 
 from __future__ import annotations
 
-from cyanorisk.config import Site
-from cyanorisk.ingest.weather import WeatherMeta
+from cyanorisk.ingest.sites import SiteSamples, SiteWeather
 
 
-def summary_data(site: Site, meta: WeatherMeta, outputs: list[str]) -> dict:
+def summary_data(weather: SiteWeather, samples: SiteSamples | None, outputs: list[str]) -> dict:
     """The per-site summary printed by ``cyanorisk ingest --json``."""
-    return {"site_id": site.id, "site_name": site.name, "weather": meta.summary(),
-            "outputs": outputs}
+    site = weather.site
+    data = {"site_id": site.id, "site_name": site.name, "weather": weather.meta.summary(),
+            "samples": None, "outputs": outputs}
+    if samples is not None:
+        data["samples"] = {**samples.meta.summary(), "n_samples": int(len(samples.totals)),
+                           "outside_weather": int(samples.totals["outside_weather"].sum())}
+    return data
 
 
 def _pct(part: int, whole: int) -> str:
     return f"{100 * part / whole:.1f}%" if whole else "n/a"
 
 
-def summary_text(site: Site, meta: WeatherMeta, outputs: list[str]) -> str:
-    """A short, readable quality summary of one site's weather ingest."""
+def summary_text(weather: SiteWeather, samples: SiteSamples | None, outputs: list[str]) -> str:
+    """A short, readable quality summary of one site's ingest."""
+    site, meta = weather.site, weather.meta
     a = meta.account
     span = (f"{meta.start:%Y-%m-%d %H:%M} to {meta.end:%Y-%m-%d %H:%M} UTC"
             if meta.start is not None else "no data")
@@ -48,6 +53,36 @@ def summary_text(site: Site, meta: WeatherMeta, outputs: list[str]) -> str:
     assumptions = meta.summary()["assumptions"]
     if assumptions:
         lines.append("  assumed: " + "; ".join(assumptions))
+    if samples is not None:
+        lines += _samples_text(samples)
     for out in outputs:
         lines.append(f"  wrote {out}")
     return "\n".join(lines)
+
+
+def _samples_text(samples: SiteSamples) -> list[str]:
+    m, totals = samples.meta, samples.totals
+    a = m.account
+    span = (f"{totals['sampled_at'].min():%Y-%m-%d} to {totals['sampled_at'].max():%Y-%m-%d}"
+            if len(totals) else "none")
+    lines = [f"  lab results: {len(m.files)} file(s), {len(totals):,} samples, {span}",
+             f"    rows read {a.read:,}: kept {a.kept:,}, identical duplicates merged "
+             f"{a.duplicates_identical:,}, conflicting duplicates {a.duplicates_conflicting:,}, "
+             f"rejected {a.rejected:,}"]
+    by_reason = m.summary()["ledger_by_reason"]
+    if by_reason:
+        lines.append("    rejects ledger by reason: "
+                     + ", ".join(f"{k} {v:,}" for k, v in sorted(by_reason.items())))
+        first = m.rejects.iloc[0]
+        lines.append(f"    first: {first['file']}, line {first['line']}"
+                     + (f", column '{first['column']}'" if first["column"] else "")
+                     + f": {first['message']}")
+    if m.flag_counts:
+        lines.append("    repaired or assumed: "
+                     + ", ".join(f"{k} {v:,}" for k, v in sorted(m.flag_counts.items())))
+    outside = int(totals["outside_weather"].sum()) if len(totals) else 0
+    if outside:
+        lines.append(f"    {outside} sample(s) fall outside the weather record (kept, marked)")
+    censored = int((totals["cyano_censor"] == "<").sum()) if len(totals) else 0
+    lines.append(f"    cyanobacteria total censored below detection in {censored} sample(s)")
+    return lines
