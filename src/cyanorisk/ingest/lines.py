@@ -200,24 +200,46 @@ def read_table(text: TextFile, header_index: int, how: Parsing) -> RawTable:
         if columns is not None:
             n_rows = len(next(iter(columns.values())))
             lines = np.arange(first_line, first_line + n_rows, dtype=np.int64)
-            columns, lines = _drop_blank_rows(columns, lines)
+            columns, lines = _drop_blank_rows(columns, lines, text, how.separator)
             empty = np.zeros(0, np.int64)
             return RawTable(path, header, header_index + 1, columns, lines, empty, empty, text)
     return _read_exact(text, header, header_index, how)
 
 
-def _drop_blank_rows(columns: dict[str, pa.ChunkedArray],
-                     lines: np.ndarray) -> tuple[dict[str, pa.ChunkedArray], np.ndarray]:
-    """Remove rows read from blank lines (every field empty)."""
-    blank = None
+def blank_lines(text: TextFile, separator: str, first: int = 0) -> np.ndarray:
+    """Which lines (from 0-based index ``first``) hold nothing but white space and separators.
+
+    Such lines are not rows: they are skipped and not counted.
+    """
+    arr = np.frombuffer(text.data, dtype=np.uint8)
+    filler = np.zeros(256, dtype=bool)
+    filler[[ord(c) for c in " \t\r\n\f\v"] + [ord(separator)]] = True
+    content = np.concatenate(([0], np.cumsum(~filler[arr], dtype=np.int64)))
+    starts, ends = text.starts[first:], text.ends[first:]
+    return (content[ends] - content[starts]) == 0
+
+
+def _drop_blank_rows(columns: dict[str, pa.ChunkedArray], lines: np.ndarray, text: TextFile,
+                     separator: str) -> tuple[dict[str, pa.ChunkedArray], np.ndarray]:
+    """Remove rows read from blank lines (see :func:`blank_lines`).
+
+    Rows whose fields are all empty are the candidates; each is confirmed against its line.
+    """
+    candidate = None
     for col in columns.values():
         empty = is_empty(col)
-        blank = empty if blank is None else pc.and_(blank, empty)
-        if not pc.any(blank).as_py():
+        candidate = empty if candidate is None else pc.and_(candidate, empty)
+        if not pc.any(candidate).as_py():
             return columns, lines
-    keep = pc.invert(blank)
-    return ({h: c.filter(keep) for h, c in columns.items()},
-            lines[keep.to_numpy(zero_copy_only=False)])
+    rows = np.flatnonzero(candidate.to_numpy(zero_copy_only=False))
+    filler = set(" \t\r\f\v" + separator)
+    blank = [r for r in rows if set(text.line(int(lines[r]))) <= filler]
+    if not blank:
+        return columns, lines
+    keep = np.ones(len(lines), dtype=bool)
+    keep[blank] = False
+    mask = pa.array(keep)
+    return {h: c.filter(mask) for h, c in columns.items()}, lines[keep]
 
 
 def _read_exact(text: TextFile, header: list[str], header_index: int, how: Parsing) -> RawTable:
@@ -225,9 +247,7 @@ def _read_exact(text: TextFile, header: list[str], header_index: int, how: Parsi
     first = header_index + 1
     starts, ends = text.starts[first:], text.ends[first:]
     line_no = np.arange(first + 1, first + 1 + len(starts), dtype=np.int64)
-    blank = np.zeros(len(starts), dtype=bool)
-    for i in np.flatnonzero((ends - starts) <= 8):  # only short lines can be blank
-        blank[i] = not text.data[starts[i]:ends[i]].strip()
+    blank = blank_lines(text, how.separator, first)
     if len(starts) and text.data.find(b'"', int(starts[0])) >= 0:
         return _read_quoted(text, header, header_index, line_no, blank, how)
     arr = np.frombuffer(text.data, dtype=np.uint8)

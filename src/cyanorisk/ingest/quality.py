@@ -23,7 +23,8 @@ class Flag(IntEnum):
     OK = 0
     """A reading on the grid, kept as read (after unit conversion)."""
     AGGREGATED = 1
-    """Combined from several readings in the interval by the variable's resample rule."""
+    """Combined from several readings in the interval by the variable's resample rule, or one
+    reading stamped between grid points, moved to its interval."""
     DUPLICATE_CONFLICT = 2
     """Several rows had this stamp with different values; the duplicate policy chose one."""
     MISSING = 3

@@ -7,7 +7,7 @@ reading are combined with ``numpy.ufunc.reduceat`` by each variable's resample r
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
@@ -32,12 +32,14 @@ class Rows:
     """Index of the file each row came from."""
     line: np.ndarray
     """Physical line number of each row in its file."""
+    conflict: dict[str, np.ndarray] = field(default_factory=dict)
+    """Per variable, rows kept over a duplicate with another value (set by deduplicate)."""
 
     def take(self, index: np.ndarray) -> Rows:
         """Rows selected by a boolean mask or an index array."""
         return Rows(self.t[index], {v: a[index] for v, a in self.values.items()},
                     {v: s[index] for v, s in self.states.items()}, self.file[index],
-                    self.line[index])
+                    self.line[index], {v: c[index] for v, c in self.conflict.items()})
 
 
 @dataclass
@@ -92,9 +94,8 @@ def deduplicate(rows: Rows, policy: str, ledger: Ledger,
         same = ((v == kv) | (np.isnan(v) & np.isnan(kv))) & (s == s[keep_at])
         identical &= same
         differs = np.add.reduceat((~same).astype(np.int64), starts) > 0
-        kept_rows = involved[kept_of_group[differs]]
-        states = rows.states[name]
-        states[kept_rows] = np.maximum(states[kept_rows], Flag.DUPLICATE_CONFLICT)
+        conflict = rows.conflict.setdefault(name, np.zeros(len(rows.t), dtype=bool))
+        conflict[involved[kept_of_group[differs]]] = True
     superseded = ~is_kept & ~identical
     for k in np.unique(rows.file[involved[superseded]]):
         sel = involved[superseded][rows.file[involved[superseded]] == k]
@@ -148,13 +149,22 @@ def to_grid(rows: Rows, idx: np.ndarray, step_ns: int, origin_ns: int, off_grid:
     empty = np.flatnonzero(empty)
     sub_starts = _group_starts(cell[multi_rows])
     multi_pos = cell[multi_rows][sub_starts] - first_cell
+    # a cell whose one reading lies between grid points holds a reading moved, not one on the grid
+    moved = (rows.t[src] - origin_ns) % step_ns != 0
     values, states = {}, {}
     for name, v in rows.values.items():
         full, full_state = np.take(v, src), np.take(rows.states[name], src)
+        ok = full_state == Flag.OK
+        full_state[ok & moved] = Flag.AGGREGATED
+        conflict = rows.conflict.get(name)
+        if conflict is not None:
+            hit = np.take(conflict, src) & (full_state < Flag.DUPLICATE_CONFLICT)
+            full_state[hit] = Flag.DUPLICATE_CONFLICT
         full[empty], full_state[empty] = np.nan, Flag.MISSING
         if len(multi_rows):
             at = idx[multi_rows]
-            agg, agg_state = _aggregate(v[at], rows.states[name][at], sub_starts,
+            agg, agg_state = _aggregate(v[at], rows.states[name][at],
+                                        None if conflict is None else conflict[at], sub_starts,
                                         WEATHER_VARIABLES[name].resample)
             full[multi_pos], full_state[multi_pos] = agg, agg_state
         full_state[np.isnan(full) & (full_state == Flag.OK)] = Flag.MISSING
@@ -163,7 +173,7 @@ def to_grid(rows: Rows, idx: np.ndarray, step_ns: int, origin_ns: int, off_grid:
     return Grid(t, values, states, n_on, n_off, pd.Timedelta(step_ns, unit="ns"))
 
 
-def _aggregate(v: np.ndarray, s: np.ndarray, starts: np.ndarray,
+def _aggregate(v: np.ndarray, s: np.ndarray, conflict: np.ndarray | None, starts: np.ndarray,
                rule: Resample) -> tuple[np.ndarray, np.ndarray]:
     """Combine the readings of each cell (rows from ``starts[i]`` to ``starts[i+1]``)."""
     known = ~np.isnan(v)
@@ -179,8 +189,10 @@ def _aggregate(v: np.ndarray, s: np.ndarray, starts: np.ndarray,
         agg = total / np.maximum(n_known, 1) if rule is Resample.MEAN else total
     agg = np.where(n_known > 0, agg, np.nan)
     worst = np.maximum.reduceat(s, starts)
-    dup = np.maximum.reduceat(np.where(s == Flag.DUPLICATE_CONFLICT, s, 0).astype(np.int8), starts)
-    state = np.where(n_known > 0, np.maximum(Flag.AGGREGATED, dup),
+    any_conflict = (np.add.reduceat(conflict.astype(np.int64), starts) > 0 if conflict is not None
+                    else np.zeros(len(starts), dtype=bool))
+    dup = np.where(any_conflict, Flag.DUPLICATE_CONFLICT, Flag.AGGREGATED)
+    state = np.where(n_known > 0, dup,
                      np.where(worst > Flag.DUPLICATE_CONFLICT, worst, Flag.MISSING))
     return agg, state.astype(np.int8)
 
