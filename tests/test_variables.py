@@ -18,6 +18,9 @@ SUFFIX_UNITS = {"_c": "degC", "_ms": "m s-1", "_deg": "deg", "_mm": "mm", "_pct"
 # directions averaged as unit vectors; accumulations are never interpolated).
 RULES = {
     "air_temp_c": (Resample.MEAN, Fill.LINEAR),
+    # daily extremes: the lowest and highest of the readings; a missing day is not guessed
+    "air_temp_min_c": (Resample.MIN, Fill.NEVER),
+    "air_temp_max_c": (Resample.MAX, Fill.NEVER),
     "water_temp_c": (Resample.MEAN, Fill.LINEAR),
     "wind_speed_ms": (Resample.MEAN, Fill.LINEAR),
     "wind_gust_ms": (Resample.MAX, Fill.LINEAR),
@@ -131,7 +134,7 @@ def test_unknown_variable_lists_the_valid_names():
 
 
 def test_rules_are_strings_for_configuration_files():
-    assert [r.value for r in Resample] == ["mean", "sum", "circular_mean", "max"]
+    assert [r.value for r in Resample] == ["mean", "sum", "circular_mean", "max", "min"]
     assert [f.value for f in Fill] == ["linear", "circular", "never"]
     assert Resample("circular_mean") is Resample.CIRCULAR_MEAN
     assert Fill("never") is Fill.NEVER

@@ -128,25 +128,39 @@ class FeatureSettings:
     """A window with a smaller share of good values gives NaN."""
 
 
-@dataclass
 class _Windowed:
-    """Cumulative sums that answer window questions for a set of issue instants."""
+    """Cumulative sums that answer window questions for a set of issue instants.
 
-    step_h: float
-    end: np.ndarray
-    """Grid index one past the last interval that ends at or before each issue instant."""
+    ``end`` is, for each issue instant, the grid index one past the last interval that ends at
+    or before it. Cumulative sums are computed once per array and reused across windows.
+    """
 
-    def counts(self, mask: np.ndarray, days: int) -> np.ndarray:
-        n = int(round(days * 24 / self.step_h))
-        c = np.concatenate(([0], np.cumsum(mask, dtype=np.int64)))
+    def __init__(self, step_h: float, end: np.ndarray) -> None:
+        self.step_h, self.end = step_h, end
+        self._cums: dict[int, tuple[np.ndarray, np.ndarray]] = {}
+
+    def _cum(self, values: np.ndarray) -> np.ndarray:
+        hit = self._cums.get(id(values))
+        if hit is None or hit[0] is not values:
+            dtype = np.int64 if values.dtype == bool else np.float64
+            hit = (values, np.concatenate(([0], np.cumsum(values, dtype=dtype))))
+            self._cums[id(values)] = hit
+        return hit[1]
+
+    def size(self, days: int) -> int:
+        return int(round(days * 24 / self.step_h))
+
+    def counts(self, mask: np.ndarray, days: int) -> tuple[np.ndarray, np.ndarray]:
+        """How many of ``mask`` in each window, and which windows run past the series start."""
+        n = self.size(days)
+        c = self._cum(mask)
         start = np.maximum(self.end - n, 0)
-        return (c[self.end] - c[start]).astype(float), np.minimum(self.end, n) < n
+        return (c[self.end] - c[start]).astype(float), self.end < n
 
     def total(self, values: np.ndarray, days: int) -> np.ndarray:
-        n = int(round(days * 24 / self.step_h))
-        c = np.concatenate(([0.0], np.cumsum(values, dtype=np.float64)))
-        start = np.maximum(self.end - n, 0)
-        return c[self.end] - c[start]
+        n = self.size(days)
+        c = self._cum(values)
+        return c[self.end] - c[np.maximum(self.end - n, 0)]
 
 
 def issue_instants(days: pd.DatetimeIndex | Sequence, timezone: str, issue_time: str) -> pd.DatetimeIndex:
@@ -209,6 +223,8 @@ class FeatureBuilder:
                 cols[f"air_temp_mean_c_{w}d"] = self._mean(win, np.where(usable, t, 0.0), usable, good, w)
             self._coverage(cols, win, "air_temp_c", good, filled, usable,
                            sorted(set(s.degree_day_windows) | set(s.air_temp_windows)))
+        elif "air_temp_min_c" in weather and "air_temp_max_c" in weather:
+            self._daily_min_max(weather, win, cols)
         if "wind_speed_ms" in weather:
             u = weather["wind_speed_ms"].to_numpy(dtype=float)
             if s.anemometer_height_m:
@@ -249,6 +265,28 @@ class FeatureBuilder:
         out = pd.DataFrame(cols, index=pd.Index(days.date, name="issue_date"))
         out.insert(0, "issue_time_utc", issue)
         return out
+
+    def _daily_min_max(self, weather: pd.DataFrame, win: _Windowed, cols: dict) -> None:
+        """Degree-days from daily minimum and maximum only: the single-sine method per day."""
+        s = self.settings
+        if abs(win.step_h - 24.0) > 1e-9:
+            raise ValueError("air_temp_min_c / air_temp_max_c are daily values: the site's "
+                             "interval must be 1 day when air_temp_c is not recorded")
+        tmin = weather["air_temp_min_c"].to_numpy(dtype=float)
+        tmax = weather["air_temp_max_c"].to_numpy(dtype=float)
+        u1, g1, f1 = self._quality(weather, "air_temp_min_c")
+        u2, g2, f2 = self._quality(weather, "air_temp_max_c")
+        usable, good = u1 & u2, g1 & g2
+        for base in s.base_temps_c:
+            dd = np.where(usable, degree_days_single_sine(np.where(usable, tmin, 0.0),
+                                                          np.where(usable, tmax, 0.0), base), 0.0)
+            for w in s.degree_day_windows:
+                cols[f"degree_days_{base:g}c_{w}d"] = self._mean(win, dd, usable, good, w) * w
+        mean = np.where(usable, (tmin + tmax) / 2.0, 0.0)
+        for w in s.air_temp_windows:
+            cols[f"air_temp_mean_c_{w}d"] = self._mean(win, mean, usable, good, w)
+        self._coverage(cols, win, "air_temp_min_max_c", good, f1 | f2, usable,
+                       sorted(set(s.degree_day_windows) | set(s.air_temp_windows)))
 
     # helpers ---------------------------------------------------------------------------------
 
@@ -292,8 +330,7 @@ class FeatureBuilder:
 
     def _longest_run(self, calm: np.ndarray, win: _Windowed, days: int, good: np.ndarray) -> np.ndarray:
         """Longest run of calm intervals [h] inside each window (a gap breaks a run)."""
-        n = int(round(days * 24 / win.step_h))
-        run = np.zeros(len(calm), dtype=np.int64)  # length of the calm run ending at each index
+        n = win.size(days)
         idx = np.arange(len(calm))
         last_break = np.maximum.accumulate(np.where(~calm, idx, -1))
         run = np.where(calm, idx - last_break, 0)

@@ -27,7 +27,9 @@ class Resample(StrEnum):
     CIRCULAR_MEAN = "circular_mean"
     """Mean of unit vectors, then back to an angle (directions)."""
     MAX = "max"
-    """Maximum (extremes: gusts)."""
+    """Maximum (extremes: gusts, daily maximum temperature)."""
+    MIN = "min"
+    """Minimum (daily minimum temperature)."""
 
 
 class Fill(StrEnum):
@@ -72,6 +74,10 @@ WEATHER_VARIABLES: dict[str, Variable] = {
     for v in (
         Variable("air_temp_c", "degC", "air temperature", -60.0, 60.0,
                  Resample.MEAN, Fill.LINEAR, _hours(2)),
+        Variable("air_temp_min_c", "degC", "lowest air temperature in the interval (daily logs)",
+                 -60.0, 60.0, Resample.MIN, Fill.NEVER, pd.Timedelta(0)),
+        Variable("air_temp_max_c", "degC", "highest air temperature in the interval (daily logs)",
+                 -60.0, 60.0, Resample.MAX, Fill.NEVER, pd.Timedelta(0)),
         Variable("water_temp_c", "degC", "surface water temperature", -2.0, 45.0,
                  Resample.MEAN, Fill.LINEAR, _hours(6)),
         Variable("wind_speed_ms", "m s-1", "mean wind speed", 0.0, 75.0,

@@ -180,6 +180,8 @@ def _aggregate(v: np.ndarray, s: np.ndarray, conflict: np.ndarray | None, starts
     n_known = np.add.reduceat(known.astype(np.int64), starts)
     if rule is Resample.MAX:
         agg = np.fmax.reduceat(v, starts)
+    elif rule is Resample.MIN:
+        agg = np.fmin.reduceat(v, starts)
     elif rule is Resample.CIRCULAR_MEAN:
         rad = np.deg2rad(np.where(known, v, 0.0))
         agg = from_components(np.add.reduceat(np.where(known, np.sin(rad), 0.0), starts),

@@ -1,0 +1,50 @@
+"""Driver benchmark: the daily bloom drivers of 20 years of half-hourly weather, beside a bare parse.
+
+Makes a 20-year messy half-hourly log with ``shared/bench/make_messy_weather.py`` (or takes
+``--file``), ingests it once, then times in one run, best of N: (a) ``pandas.read_csv`` of the
+file alone and (b) ``FeatureBuilder.transform`` on the clean series (every driver, every day).
+Target: (b) under 3x (a). The last line is machine-readable.
+
+Usage: python benchmarks/bench_features.py [--years 20] [--repeat 5] [--file PATH]
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import tempfile
+from pathlib import Path
+
+import pandas as pd
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+from bench_ingest import _load, best_of, ingest  # noqa: E402
+
+from cyanorisk.features import FeatureBuilder, FeatureSettings  # noqa: E402
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--years", type=int, default=20)
+    parser.add_argument("--repeat", type=int, default=5)
+    parser.add_argument("--file", type=Path)
+    args = parser.parse_args()
+    with tempfile.TemporaryDirectory() as tmp:
+        path = args.file
+        if path is None:
+            path = Path(tmp) / "messy.tsv"
+            _load("make_messy_weather").make(args.years).to_csv(path, sep="\t", index=False)
+        weather = ingest(path)
+        builder = FeatureBuilder(FeatureSettings(anemometer_height_m=10.0), "Australia/Brisbane")
+        drivers = builder.transform(weather)
+        parse_s = best_of(lambda: pd.read_csv(path, sep="\t"), args.repeat)
+        features_s = best_of(lambda: builder.transform(weather), args.repeat)
+    print(f"{len(weather):,} half-hours -> {len(drivers):,} issue days x {drivers.shape[1]} columns")
+    print(f"(a) pandas.read_csv alone   {parse_s * 1000:8.1f} ms")
+    print(f"(b) drivers, every day      {features_s * 1000:8.1f} ms")
+    print("target: features_vs_parse < 3")
+    print(f"bench_features: features_vs_parse={features_s / parse_s:.1f} days={len(drivers)}")
+
+
+if __name__ == "__main__":
+    main()
