@@ -18,9 +18,8 @@ from pathlib import Path
 import pandas as pd
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-from bench_ingest import _load, best_of, ingest  # noqa: E402
-
-from cyanorisk.features import FeatureBuilder, FeatureSettings  # noqa: E402
+from bench_ingest import _load, best_of, ingest
+from cyanorisk.features import FeatureBuilder, FeatureSettings
 
 
 def main() -> None:
