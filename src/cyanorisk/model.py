@@ -1,0 +1,457 @@
+"""Risk models: the probability of reaching each alert level within the horizon, and the
+expected cell count at the horizon.
+
+- :class:`RiskModel`: an ordinal (proportional-odds) logistic model of the highest level reached
+  within the horizon, fitted by maximum likelihood with statsmodels' ``OrderedModel``. One set of
+  driver coefficients and one cut point per level make the probabilities coherent by
+  construction: a higher level is never more likely than a lower one.
+- :class:`CountModel`: ordinary least squares on log10 of the largest count in the window, with
+  an 80% prediction interval.
+- :class:`ClimatologyModel` and :class:`PersistenceModel`: baselines with the same interface.
+
+All follow the scikit-learn estimator contract: ``__init__`` stores settings, ``fit`` learns and
+returns self, attributes learned end in ``_``, predicting before fitting or with other driver
+names fails with a clear message. Models are saved as JSON (never pickle) with their version and
+a checksum; a file from another version, or altered by hand, is refused.
+
+Missing drivers: a value missing at fit or predict time is replaced by the training median, and a
+0/1 indicator ``<driver>__missing`` is added for drivers missing on at least
+``MIN_MISSING_FOR_INDICATOR`` training rows (drivers missing on exactly the same rows share one
+indicator, named after the first), so that rows are never dropped silently (documented imputation
+plus indicator). Rarer gaps are imputed only: an indicator seen a handful of times cannot be
+estimated.
+
+References
+----------
+.. [1] McCullagh, P. (1980). Regression models for ordinal data. Journal of the Royal
+   Statistical Society B 42(2): 109-142.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import warnings
+from collections.abc import Sequence
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+import statsmodels.api as sm
+from scipy import stats
+from statsmodels.miscmodels.ordinal_model import OrderedModel
+from statsmodels.tools.sm_exceptions import ConvergenceWarning
+
+import cyanorisk
+
+FORMAT = "cyanorisk-model"
+FORMAT_VERSION = 1
+
+DEFAULT_DRIVERS = (
+    "degree_days_20c_7d", "degree_days_15c_30d", "water_temp_mean_c_7d", "wind_run_km_3d",
+    "calm_hours_7d", "longest_calm_h_7d", "rain_mm_7d", "solar_mj_m2_7d",
+    "last_count_log10", "last_count_censored", "last_count_age_days", "season_sin", "season_cos",
+)
+"""Drivers used unless the configuration names others (all are columns of :func:`prepare`)."""
+
+
+MIN_MISSING_FOR_INDICATOR = 20
+"""Training rows a driver must be missing on before it gets its own missingness indicator."""
+
+
+class NotFittedError(RuntimeError):
+    """The model was used before ``fit``."""
+
+
+class ModelFileError(ValueError):
+    """A model file that cannot be used: another version, altered, or not a model file."""
+
+
+def prepare(table: pd.DataFrame) -> pd.DataFrame:
+    """Derived drivers from a training table (or a table of issue days to forecast).
+
+    - ``last_count_log10`` = log10(count + 1) of the last known total [log10 cells mL-1]; a
+      count censored below ('<100') enters as half its limit, a common substitution (common
+      practice, no source), with ``last_count_censored`` = 1 so the model can tell;
+    - ``season_sin``, ``season_cos``: day of year on the unit circle (annual cycle).
+    """
+    out = table.copy()
+    count = out["last_count_cells_per_ml"].astype(float)
+    censored = (out["last_count_censor"] == "<").to_numpy()
+    count = np.where(censored, count / 2.0, count)
+    out["last_count_log10"] = np.log10(count + 1.0)
+    out["last_count_censored"] = censored.astype(float)
+    doy = pd.DatetimeIndex(pd.to_datetime(out["issue_date"])).day_of_year.to_numpy()
+    out["season_sin"] = np.sin(2 * np.pi * doy / 365.25)
+    out["season_cos"] = np.cos(2 * np.pi * doy / 365.25)
+    return out
+
+
+def ordinal_outcome(table: pd.DataFrame, level_columns: Sequence[str]) -> np.ndarray:
+    """Highest level reached in the window (0 = none), NaN where a label is missing."""
+    labels = table[list(level_columns)].to_numpy(dtype=float)
+    known = ~np.isnan(labels).any(axis=1)
+    return np.where(known, np.nansum(labels, axis=1), np.nan)
+
+
+def _indicator_groups(X: pd.DataFrame) -> dict[str, list[str]]:
+    """Missingness indicators: one per distinct pattern of missing rows, for drivers missing on
+    at least :data:`MIN_MISSING_FOR_INDICATOR` rows."""
+    groups: dict[bytes, list[str]] = {}
+    for c in X.columns:
+        miss = X[c].isna().to_numpy()
+        if miss.sum() >= MIN_MISSING_FOR_INDICATOR:
+            groups.setdefault(np.packbits(miss).tobytes(), []).append(c)
+    return {f"{members[0]}__missing": members for members in groups.values()}
+
+
+def _check_columns(X: pd.DataFrame, expected: list[str]) -> None:
+    """Refuse a frame whose driver names differ from the fitted ones, showing the difference."""
+    got = list(X.columns)
+    missing = [c for c in expected if c not in got]
+    if missing:
+        raise ValueError(f"the drivers differ from those the model was fitted with: missing "
+                         f"{', '.join(missing)}")
+
+
+@dataclass
+class _Scaling:
+    median: np.ndarray
+    mean: np.ndarray
+    scale: np.ndarray
+    indicators: dict[str, list[str]]
+    """Indicator column -> the drivers whose missingness it marks."""
+
+
+class RiskModel:
+    """Ordinal logistic model of the highest alert level reached within the horizon.
+
+    Parameters
+    ----------
+    drivers : sequence of str
+        Driver columns to use.
+    levels : sequence of str
+        Level names, lowest first.
+    horizon_days : int
+        The forecast horizon [d].
+    """
+
+    def __init__(self, drivers: Sequence[str] = DEFAULT_DRIVERS, levels: Sequence[str] = ("level 1",),
+                 horizon_days: int = 7) -> None:
+        self.drivers = drivers
+        self.levels = levels
+        self.horizon_days = horizon_days
+
+    # fitting -------------------------------------------------------------------------------------
+
+    def fit(self, X: pd.DataFrame, y: np.ndarray) -> RiskModel:
+        """Learn from drivers ``X`` and ordinal outcomes ``y`` (0 .. number of levels).
+
+        Rows with a missing outcome cannot teach anything and are left out (counted in
+        ``n_unlabelled_``); missing drivers are imputed with an indicator (module notes).
+        """
+        drivers = list(self.drivers)
+        _check_columns(X, drivers)
+        y = np.asarray(y, dtype=float)
+        if len(y) != len(X):
+            raise ValueError(f"X has {len(X)} rows but y has {len(y)}")
+        labelled = ~np.isnan(y)
+        self.n_unlabelled_ = int((~labelled).sum())
+        Xl = X.loc[labelled, drivers].astype(float)
+        yl = y[labelled].astype(int)
+        present = np.unique(yl)
+        if len(present) < 2:
+            raise ValueError(f"all {len(yl)} labelled issue days have the same outcome "
+                             f"({present.tolist()}); a model needs both outcomes to learn from")
+        median = np.nanmedian(Xl.to_numpy(), axis=0)
+        median = np.where(np.isnan(median), 0.0, median)
+        indicators = _indicator_groups(Xl)
+        Z = self._impute(Xl, median, indicators)
+        mean, scale = Z.mean(axis=0).to_numpy(), Z.std(axis=0, ddof=0).to_numpy()
+        scale = np.where(scale > 0, scale, 1.0)
+        Zs = (Z - mean) / scale
+        # levels never reached in training are merged into the highest reached one
+        self.n_levels_ = len(self.levels)
+        self.classes_ = np.arange(int(present.max()) + 1)
+        endog = pd.Series(pd.Categorical(yl, categories=self.classes_, ordered=True))
+        with warnings.catch_warnings():
+            warnings.simplefilter("error", ConvergenceWarning)
+            result = OrderedModel(endog, Zs.reset_index(drop=True), distr="logit").fit(
+                method="newton", disp=False, maxiter=200)
+        if not result.mle_retvals.get("converged", True):
+            raise RuntimeError("the ordinal model did not converge")
+        k = Zs.shape[1]
+        self.feature_names_in_ = list(Zs.columns)
+        self.coef_ = result.params.to_numpy()[:k]
+        self.coef_se_ = result.bse.to_numpy()[:k]
+        self.cuts_ = np.asarray(result.model.transform_threshold_params(result.params))[1:-1]
+        self.scaling_ = _Scaling(median, mean, scale, indicators)
+        self.loglike_ = float(result.llf)
+        self.n_train_ = int(len(yl))
+        self.class_counts_ = {int(c): int((yl == c).sum()) for c in self.classes_}
+        return self
+
+    def _impute(self, X: pd.DataFrame, median: np.ndarray,
+                indicators: dict[str, list[str]]) -> pd.DataFrame:
+        drivers = list(self.drivers)
+        Z = X[drivers].astype(float).copy()
+        for name, members in indicators.items():
+            Z[name] = Z[members].isna().any(axis=1).astype(float)
+        Z[drivers] = Z[drivers].fillna(pd.Series(median, index=drivers))
+        return Z
+
+    def _standardised(self, X: pd.DataFrame) -> pd.DataFrame:
+        if not hasattr(self, "coef_"):
+            raise NotFittedError("this RiskModel is not fitted yet: call fit() or load a saved "
+                                 "model first")
+        _check_columns(X, list(self.drivers))
+        s = self.scaling_
+        Z = self._impute(X, s.median, s.indicators)
+        return (Z - s.mean) / s.scale
+
+    # predicting ----------------------------------------------------------------------------------
+
+    def predict_proba(self, X: pd.DataFrame) -> pd.DataFrame:
+        """Probability of reaching each level within the horizon (columns: level names).
+
+        P(reach level k) = P(Y >= k) = 1 - F(cut_k - x.beta), F the logistic CDF; decreasing in k.
+        """
+        eta = self._standardised(X).to_numpy() @ self.coef_
+        out = {}
+        for k, name in enumerate(self.levels):
+            if k < len(self.cuts_):
+                out[name] = 1.0 - stats.logistic.cdf(self.cuts_[k] - eta)
+            else:  # a level never reached in training: no evidence it can be reached
+                out[name] = np.zeros(len(eta))
+        return pd.DataFrame(out, index=X.index)
+
+    def explain(self, X: pd.DataFrame, top: int = 5) -> list[list[dict[str, Any]]]:
+        """For each row, the drivers that push the forecast most: contribution to the log-odds
+        relative to an average training day (coefficient x standardised value), largest first."""
+        Z = self._standardised(X)
+        contrib = Z.to_numpy() * self.coef_
+        out = []
+        for r in range(len(Z)):
+            order = np.argsort(-np.abs(contrib[r]))[:top]
+            out.append([{"driver": self.feature_names_in_[j],
+                         "value": float(X.iloc[r][self.feature_names_in_[j]])
+                         if self.feature_names_in_[j] in X else float("nan"),
+                         "log_odds": float(contrib[r, j]),
+                         "direction": "raises" if contrib[r, j] > 0 else "lowers"}
+                        for j in order])
+        return out
+
+    def coefficients(self) -> pd.DataFrame:
+        """Coefficients per driver on the original scale [per driver unit] with 95% intervals,
+        and per standard deviation of the driver."""
+        z = stats.norm.ppf(0.975)
+        scale = self.scaling_.scale
+        return pd.DataFrame({
+            "per_unit": self.coef_ / scale,
+            "per_unit_low": (self.coef_ - z * self.coef_se_) / scale,
+            "per_unit_high": (self.coef_ + z * self.coef_se_) / scale,
+            "per_sd": self.coef_, "se_per_sd": self.coef_se_,
+        }, index=self.feature_names_in_)
+
+    def intercept_original_scale(self) -> np.ndarray:
+        """Cut points on the original driver scale (the logit intercepts are their negatives)."""
+        return self.cuts_ + float(np.sum(self.coef_ * self.scaling_.mean / self.scaling_.scale))
+
+    # persistence ---------------------------------------------------------------------------------
+
+    def to_dict(self) -> dict[str, Any]:
+        s = self.scaling_
+        return {"drivers": list(self.drivers), "levels": list(self.levels),
+                "horizon_days": self.horizon_days, "feature_names": self.feature_names_in_,
+                "coef": self.coef_.tolist(), "coef_se": self.coef_se_.tolist(),
+                "cuts": self.cuts_.tolist(), "classes": self.classes_.tolist(),
+                "median": s.median.tolist(), "mean": s.mean.tolist(), "scale": s.scale.tolist(),
+                "indicators": s.indicators, "loglike": self.loglike_, "n_train": self.n_train_,
+                "n_unlabelled": self.n_unlabelled_,
+                "class_counts": {str(k): v for k, v in self.class_counts_.items()}}
+
+    @classmethod
+    def from_dict(cls, d: dict[str, Any]) -> RiskModel:
+        m = cls(tuple(d["drivers"]), tuple(d["levels"]), int(d["horizon_days"]))
+        m.feature_names_in_ = list(d["feature_names"])
+        m.coef_, m.coef_se_ = np.array(d["coef"]), np.array(d["coef_se"])
+        m.cuts_, m.classes_ = np.array(d["cuts"]), np.array(d["classes"])
+        m.scaling_ = _Scaling(np.array(d["median"]), np.array(d["mean"]), np.array(d["scale"]),
+                              {k: list(v) for k, v in d["indicators"].items()})
+        m.n_levels_ = len(m.levels)
+        m.loglike_, m.n_train_ = float(d["loglike"]), int(d["n_train"])
+        m.n_unlabelled_ = int(d["n_unlabelled"])
+        m.class_counts_ = {int(k): int(v) for k, v in d["class_counts"].items()}
+        return m
+
+
+class CountModel:
+    """Expected cell count at the horizon: OLS on log10(largest count in the window + 1).
+
+    Prediction intervals are those of the normal linear model (t distribution, the parameter
+    covariance and the residual variance), back-transformed to cells per mL.
+    """
+
+    def __init__(self, drivers: Sequence[str] = DEFAULT_DRIVERS, coverage: float = 0.8) -> None:
+        self.drivers = drivers
+        self.coverage = coverage
+
+    def fit(self, X: pd.DataFrame, log10_count: np.ndarray) -> CountModel:
+        drivers = list(self.drivers)
+        _check_columns(X, drivers)
+        y = np.asarray(log10_count, dtype=float)
+        keep = ~np.isnan(y)
+        Xl = X.loc[keep, drivers].astype(float)
+        self.median_ = np.nan_to_num(np.nanmedian(Xl.to_numpy(), axis=0))
+        A = sm.add_constant(Xl.fillna(pd.Series(self.median_, index=drivers)).to_numpy(),
+                            has_constant="add")
+        result = sm.OLS(y[keep], A).fit()
+        self.params_ = result.params
+        self.cov_ = result.cov_params()
+        self.resid_var_ = float(result.scale)
+        self.df_resid_ = float(result.df_resid)
+        self.feature_names_in_ = drivers
+        self.n_train_ = int(keep.sum())
+        return self
+
+    def predict(self, X: pd.DataFrame) -> pd.DataFrame:
+        """Median count and the interval [cells mL-1] at the horizon."""
+        if not hasattr(self, "params_"):
+            raise NotFittedError("this CountModel is not fitted yet: call fit() first")
+        _check_columns(X, self.feature_names_in_)
+        A = sm.add_constant(X[self.feature_names_in_].astype(float).fillna(
+            pd.Series(self.median_, index=self.feature_names_in_)).to_numpy(), has_constant="add")
+        mean = A @ self.params_
+        se = np.sqrt(np.einsum("ij,jk,ik->i", A, self.cov_, A) + self.resid_var_)
+        t = stats.t.ppf(0.5 + self.coverage / 2, self.df_resid_)
+        to_cells = lambda v: np.maximum(10 ** v - 1.0, 0.0)  # noqa: E731
+        return pd.DataFrame({"expected_cells_per_ml": to_cells(mean),
+                             "low_cells_per_ml": to_cells(mean - t * se),
+                             "high_cells_per_ml": to_cells(mean + t * se)}, index=X.index)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"drivers": list(self.drivers), "coverage": self.coverage,
+                "median": self.median_.tolist(), "params": self.params_.tolist(),
+                "cov": np.asarray(self.cov_).tolist(), "resid_var": self.resid_var_,
+                "df_resid": self.df_resid_, "n_train": self.n_train_}
+
+    @classmethod
+    def from_dict(cls, d: dict[str, Any]) -> CountModel:
+        m = cls(tuple(d["drivers"]), float(d["coverage"]))
+        m.feature_names_in_ = list(d["drivers"])
+        m.median_, m.params_ = np.array(d["median"]), np.array(d["params"])
+        m.cov_, m.resid_var_ = np.array(d["cov"]), float(d["resid_var"])
+        m.df_resid_, m.n_train_ = float(d["df_resid"]), int(d["n_train"])
+        return m
+
+
+class ClimatologyModel:
+    """Base rate of reaching each level for the time of year: the share of labelled issue days
+    within ``window_days`` of the same day of year that reached the level (a standard reference
+    forecast in verification)."""
+
+    def __init__(self, levels: Sequence[str] = ("level 1",), window_days: int = 15) -> None:
+        self.levels = levels
+        self.window_days = window_days
+
+    def fit(self, dates: Sequence, y: np.ndarray) -> ClimatologyModel:
+        doy = pd.DatetimeIndex(pd.to_datetime(dates)).day_of_year.to_numpy()
+        y = np.asarray(y, dtype=float)
+        keep = ~np.isnan(y)
+        rates = np.zeros((366, len(self.levels)))
+        for d in range(1, 367):
+            dist = np.abs(doy[keep] - d)
+            near = np.minimum(dist, 366 - dist) <= self.window_days
+            for k in range(len(self.levels)):
+                rates[d - 1, k] = float(np.mean(y[keep][near] >= k + 1)) if near.any() else np.nan
+        overall = [float(np.mean(y[keep] >= k + 1)) if keep.any() else np.nan
+                   for k in range(len(self.levels))]
+        self.rates_ = np.where(np.isnan(rates), overall, rates)
+        return self
+
+    def predict_proba(self, dates: Sequence) -> pd.DataFrame:
+        if not hasattr(self, "rates_"):
+            raise NotFittedError("this ClimatologyModel is not fitted yet")
+        doy = pd.DatetimeIndex(pd.to_datetime(dates)).day_of_year.to_numpy()
+        return pd.DataFrame(self.rates_[doy - 1], columns=list(self.levels))
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"levels": list(self.levels), "window_days": self.window_days,
+                "rates": self.rates_.tolist()}
+
+    @classmethod
+    def from_dict(cls, d: dict[str, Any]) -> ClimatologyModel:
+        m = cls(tuple(d["levels"]), int(d["window_days"]))
+        m.rates_ = np.array(d["rates"])
+        return m
+
+
+class PersistenceModel:
+    """The last observed level stays: probability 1 for every level up to it, 0 above.
+
+    With no known sample the forecast is missing (NaN), never an all-clear.
+    """
+
+    def __init__(self, levels: Sequence[str] = ("level 1",)) -> None:
+        self.levels = levels
+
+    def fit(self, *_: Any) -> PersistenceModel:
+        self.fitted_ = True
+        return self
+
+    def predict_proba(self, last_level: np.ndarray) -> pd.DataFrame:
+        last = np.asarray(last_level, dtype=float)
+        return pd.DataFrame({name: np.where(np.isnan(last), np.nan, (last >= k + 1).astype(float))
+                             for k, name in enumerate(self.levels)})
+
+
+# ---------------------------------------------------------------------------------------------
+# JSON persistence
+# ---------------------------------------------------------------------------------------------
+
+def fingerprint(table: pd.DataFrame) -> str:
+    """SHA-256 of a table's values (column names, then values as text), for the model card."""
+    h = hashlib.sha256()
+    h.update("\x1f".join(map(str, table.columns)).encode())
+    h.update(pd.util.hash_pandas_object(table, index=True).to_numpy().tobytes())
+    return h.hexdigest()
+
+
+def _checksum(body: dict[str, Any]) -> str:
+    return hashlib.sha256(json.dumps(body, sort_keys=True, allow_nan=True).encode()).hexdigest()
+
+
+def save_bundle(path: Path, body: dict[str, Any]) -> str:
+    """The JSON text of a model bundle (with format, version and checksum)."""
+    payload = {"format": FORMAT, "format_version": FORMAT_VERSION,
+               "cyanorisk_version": cyanorisk.__version__, "body": body}
+    payload["checksum"] = _checksum(payload["body"] | {"_version": payload["cyanorisk_version"]})
+    return json.dumps(payload, indent=1, allow_nan=True)
+
+
+def load_bundle(path: Path) -> dict[str, Any]:
+    """Read a model bundle, refusing another version or an altered file.
+
+    Raises
+    ------
+    ModelFileError
+        With one sentence naming the file and the problem.
+    """
+    try:
+        payload = json.loads(Path(path).read_text(encoding="utf-8"))
+    except (OSError, json.JSONDecodeError) as exc:
+        raise ModelFileError(f"{path}: not a readable model file ({exc})") from None
+    if not isinstance(payload, dict) or payload.get("format") != FORMAT:
+        raise ModelFileError(f"{path}: not a cyanorisk model file")
+    if payload.get("format_version") != FORMAT_VERSION or \
+            payload.get("cyanorisk_version") != cyanorisk.__version__:
+        raise ModelFileError(f"{path}: written by cyanorisk {payload.get('cyanorisk_version')} "
+                             f"(format {payload.get('format_version')}); this is cyanorisk "
+                             f"{cyanorisk.__version__}: retrain with `cyanorisk train`")
+    expected = _checksum(payload.get("body", {}) | {"_version": payload["cyanorisk_version"]})
+    if payload.get("checksum") != expected:
+        raise ModelFileError(f"{path}: the checksum does not match the content; the file was "
+                             "altered after it was saved: retrain with `cyanorisk train`")
+    return payload["body"]
