@@ -264,7 +264,7 @@ def test_period_accepts_toml_dates_and_strings(tmp_path):
                      id="unknown-top-level-key"),
         pytest.param({"ingest": 'speed = "fast"'}, "ingest.speed", "valid keys here: bad_rows",
                      id="unknown-ingest-key"),
-        pytest.param({"site": 'depth_m = 12'}, "sites[0].depth_m", "valid keys here: alerts, drivers, id",
+        pytest.param({"site": 'depth_m = 12'}, "sites[0].depth_m", "valid keys here: alerts, authority, drivers",
                      id="unknown-site-key"),
         pytest.param({"weather": 'format = "csv"'}, "sites[0].weather.format",
                      "valid keys here: dialect, files, period", id="unknown-weather-key"),

@@ -114,6 +114,31 @@ def outcome_labels(issues: pd.DataFrame, totals: pd.DataFrame, scheme: Scheme,
     return out
 
 
+def outcome_counts(issues: pd.DataFrame, totals: pd.DataFrame, horizon_days: int) -> np.ndarray:
+    """log10(largest cyanobacterial total + 1) sampled in (issue, issue + h days] [log10 cells mL-1].
+
+    A total censored below ('<X') enters as X/2 and one censored above ('>X') as X, the usual
+    substitutions (common practice, no source); NaN where no sample was taken.
+    """
+    out = np.full(len(issues), np.nan)
+    value = totals["cyano_cells_per_ml"].to_numpy(dtype=float)
+    value = np.where(totals["cyano_censor"].to_numpy(dtype=object) == "<", value / 2.0, value)
+    sites = issues["site_id"].to_numpy()
+    for site in pd.unique(sites):
+        rows = np.flatnonzero(sites == site)
+        mine = (totals["site_id"] == site).to_numpy() & ~np.isnan(value)
+        when = totals.loc[mine, "sampled_at"].to_numpy(dtype="datetime64[ns]")
+        order = np.argsort(when, kind="stable")
+        when, v = when[order], np.log10(value[mine][order] + 1.0)
+        issue = issues["issue_time_utc"].to_numpy(dtype="datetime64[ns]")[rows]
+        lo = np.searchsorted(when, issue, side="right")
+        hi = np.searchsorted(when, issue + np.timedelta64(horizon_days, "D"), side="right")
+        for row, a, b in zip(rows, lo, hi, strict=True):
+            if b > a:
+                out[row] = v[a:b].max()
+    return out
+
+
 def training_table(drivers: pd.DataFrame, totals: pd.DataFrame, scheme: Scheme, site_id: str,
                    lab_delay_days: float, timezone: str,
                    horizons: Sequence[int] = HORIZONS_DAYS) -> pd.DataFrame:
@@ -123,4 +148,6 @@ def training_table(drivers: pd.DataFrame, totals: pd.DataFrame, scheme: Scheme, 
     site_totals = totals[totals["site_id"] == site_id]
     last = last_known(table, site_totals, scheme, lab_delay_days, timezone)
     labels = outcome_labels(table, site_totals, scheme, horizons)
-    return pd.concat([table, last, labels], axis=1)
+    counts = pd.DataFrame({f"max_count_log10_{h}d": outcome_counts(table, site_totals, h)
+                           for h in horizons}, index=table.index)
+    return pd.concat([table, last, labels, counts], axis=1)

@@ -77,6 +77,28 @@ class WeatherSource:
 
 
 @dataclass(frozen=True)
+class ModelSettings:
+    """How a site's risk model is fitted and evaluated."""
+
+    horizon_days: int = 7
+    """Forecast horizon [d]: the probability of reaching each level within this many days."""
+    drivers: tuple[str, ...] | None = None
+    """Drivers to use; None uses the default set of :mod:`cyanorisk.model`."""
+    season_start_month: int = 7
+    """First month of a bloom season (7 = July, for the southern hemisphere; 1 in the north)."""
+    stale_weather_days: float = 2.0
+    """A report whose last weather reading is older than this says 'insufficient data'."""
+    stale_sample_days: float = 45.0
+    """A report whose last known sample is older than this says 'insufficient data'."""
+
+    def __post_init__(self) -> None:
+        if not 1 <= self.horizon_days <= 14:
+            raise ValueError("horizon_days must be between 1 and 14")
+        if not 1 <= self.season_start_month <= 12:
+            raise ValueError("season_start_month must be a month number, 1 to 12")
+
+
+@dataclass(frozen=True)
 class SampleSource:
     """Where a site's lab results are and how they are laid out."""
 
@@ -104,6 +126,9 @@ class Site:
     """Key of the alert-level scheme (a preset of :mod:`cyanorisk.levels`)."""
     measures: tuple[str, ...] | None = None
     """Which of the scheme's measures to use (None: all the samples carry)."""
+    model: ModelSettings = field(default_factory=ModelSettings)
+    authority: str = "the local water authority"
+    """Who decides advisories, closures and treatment changes (named in every report)."""
 
     def alert_scheme(self) -> Scheme:
         """The site's scheme, restricted to its measures."""
@@ -183,7 +208,8 @@ _TOP = {"root", "data_dir", "reports_dir", "models_dir", "ingest", "dialects", "
 _DIALECT = {"separator", "decimal", "encoding", "skip_lines", "date_column", "time_column",
             "timestamp_column", "date_order", "stamp_zone", "stamp_marks", "missing", "columns",
             "other_columns", "coerce_year"}
-_SITE = {"id", "name", "timezone", "use", "interval", "weather", "samples", "drivers", "alerts"}
+_SITE = {"id", "name", "timezone", "use", "interval", "weather", "samples", "drivers", "alerts",
+         "model", "authority"}
 
 
 class _Reader:
@@ -422,7 +448,10 @@ class _Reader:
             timezone=tz, use=self.choice(table, "use", USES, where, "drinking"),
             interval=interval,
             weather=WeatherSource(tuple(patterns), tuple(files), dialect, period),
-            samples=samples, drivers=drivers, scheme=scheme, measures=measures)
+            samples=samples, drivers=drivers, scheme=scheme, measures=measures,
+            model=self.record(self.get(table, "model", dict, where, {}), ModelSettings,
+                              f"{where}.model"),
+            authority=self.get(table, "authority", str, where, "the local water authority"))
 
     def _date(self, table: dict, key: str, where: str) -> str | None:
         value = table.get(key)

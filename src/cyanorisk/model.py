@@ -2,7 +2,8 @@
 expected cell count at the horizon.
 
 - :class:`RiskModel`: an ordinal (proportional-odds) logistic model of the highest level reached
-  within the horizon, fitted by maximum likelihood with statsmodels' ``OrderedModel``. One set of
+  within the horizon, fitted by maximum likelihood (analytic gradient, L-BFGS; standard errors
+  from the Hessian). It agrees with statsmodels' ``OrderedModel`` (tested). One set of
   driver coefficients and one cut point per level make the probabilities coherent by
   construction: a higher level is never more likely than a lower one.
 - :class:`CountModel`: ordinary least squares on log10 of the largest count in the window, with
@@ -31,7 +32,6 @@ from __future__ import annotations
 
 import hashlib
 import json
-import warnings
 from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
@@ -40,9 +40,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 import statsmodels.api as sm
-from scipy import stats
-from statsmodels.miscmodels.ordinal_model import OrderedModel
-from statsmodels.tools.sm_exceptions import ConvergenceWarning
+from scipy import optimize, stats
 
 import cyanorisk
 
@@ -94,6 +92,83 @@ def ordinal_outcome(table: pd.DataFrame, level_columns: Sequence[str]) -> np.nda
     labels = table[list(level_columns)].to_numpy(dtype=float)
     known = ~np.isnan(labels).any(axis=1)
     return np.where(known, np.nansum(labels, axis=1), np.nan)
+
+
+@dataclass
+class _OrdinalFit:
+    """Maximum-likelihood fit of the proportional-odds model."""
+
+    coef: np.ndarray
+    cuts: np.ndarray
+    cov: np.ndarray
+    loglike: float
+
+
+def _ordinal_nll(params: np.ndarray, Z: np.ndarray, y: np.ndarray,
+                 n_cuts: int) -> tuple[float, np.ndarray]:
+    """Negative log-likelihood of the proportional-odds model and its gradient.
+
+    P(Y < k) = F(theta_k - eta), eta = Z.beta, F the logistic CDF; the cuts are parametrised as
+    theta_1 and log increments so that they stay ordered (McCullagh 1980).
+    """
+    p = Z.shape[1]
+    beta, raw = params[:p], params[p:]
+    theta = np.cumsum(np.concatenate(([raw[0]], np.exp(raw[1:]))))
+    eta = Z @ beta
+    big = np.concatenate(([-np.inf], theta, [np.inf]))
+    upper = big[y + 1] - eta  # F(theta_{y+1} - eta) = P(Y <= y)
+    lower = big[y] - eta
+    Fu, Fl = stats.logistic.cdf(upper), stats.logistic.cdf(lower)
+    fu, fl = Fu * (1 - Fu), Fl * (1 - Fl)
+    prob = np.clip(Fu - Fl, 1e-300, None)
+    nll = -float(np.sum(np.log(prob)))
+    d_eta = (fu - fl) / prob  # d(-ll)/d(eta)
+    g_beta = Z.T @ d_eta
+    g_theta = np.zeros(n_cuts)
+    for k in range(n_cuts):  # theta_k is the upper cut of class k and the lower cut of class k+1
+        g_theta[k] = -np.sum(np.where(y == k, fu / prob, 0.0)) + np.sum(np.where(y == k + 1, fl / prob, 0.0))
+    # chain rule to the raw parameters: theta_k = raw_0 + sum_{j<=k, j>0} exp(raw_j)
+    g_raw = np.array([g_theta[k:].sum() * (1.0 if k == 0 else np.exp(raw[k])) for k in range(n_cuts)])
+    return nll, np.concatenate((g_beta, g_raw))
+
+
+def _fit_ordinal(Z: np.ndarray, y: np.ndarray, n_cuts: int) -> _OrdinalFit:
+    """Fit by L-BFGS with the analytic gradient; the covariance of (beta, theta) from the
+    Hessian of the log-likelihood (central differences of the analytic gradient)."""
+    p = Z.shape[1]
+    start = np.concatenate((np.zeros(p), [-1.0], np.zeros(n_cuts - 1)))
+    res = optimize.minimize(_ordinal_nll, start, args=(Z, y, n_cuts), jac=True, method="L-BFGS-B",
+                            options={"maxiter": 10_000, "gtol": 1e-9, "ftol": 1e-15})
+    if not res.success and np.max(np.abs(res.jac)) > 1e-4:
+        raise RuntimeError(f"the ordinal model did not converge ({res.message}); the drivers may "
+                           "separate the outcomes perfectly, or be collinear")
+    beta, raw = res.x[:p], res.x[p:]
+    theta = np.cumsum(np.concatenate(([raw[0]], np.exp(raw[1:]))))
+    # Hessian in (beta, theta): differentiate the gradient expressed in theta directly
+    natural = np.concatenate((beta, theta))
+
+    def grad_natural(v: np.ndarray) -> np.ndarray:
+        th = v[p:]
+        raw_v = np.concatenate(([th[0]], np.log(np.maximum(np.diff(th), 1e-300))))
+        _, g = _ordinal_nll(np.concatenate((v[:p], raw_v)), Z, y, n_cuts)
+        g_theta = g[p:].copy()
+        # undo the chain rule: dL/dtheta_k = dL/draw_k / dtheta/draw ... solve the triangular map
+        jac = np.tril(np.ones((n_cuts, n_cuts))).T * np.concatenate(([1.0], np.diff(th)))[None, :].T
+        g_theta = np.linalg.solve(jac, g_theta)
+        return np.concatenate((g[:p], g_theta))
+
+    h = 1e-5 * np.maximum(1.0, np.abs(natural))
+    hess = np.empty((len(natural), len(natural)))
+    for i in range(len(natural)):
+        e = np.zeros(len(natural))
+        e[i] = h[i]
+        hess[i] = (grad_natural(natural + e) - grad_natural(natural - e)) / (2 * h[i])
+    hess = (hess + hess.T) / 2
+    try:
+        cov = np.linalg.inv(hess)
+    except np.linalg.LinAlgError:
+        cov = np.full_like(hess, np.nan)
+    return _OrdinalFit(beta, theta, cov, -float(res.fun))
 
 
 def _indicator_groups(X: pd.DataFrame) -> dict[str, list[str]]:
@@ -175,20 +250,18 @@ class RiskModel:
         # levels never reached in training are merged into the highest reached one
         self.n_levels_ = len(self.levels)
         self.classes_ = np.arange(int(present.max()) + 1)
-        endog = pd.Series(pd.Categorical(yl, categories=self.classes_, ordered=True))
-        with warnings.catch_warnings():
-            warnings.simplefilter("error", ConvergenceWarning)
-            result = OrderedModel(endog, Zs.reset_index(drop=True), distr="logit").fit(
-                method="newton", disp=False, maxiter=200)
-        if not result.mle_retvals.get("converged", True):
-            raise RuntimeError("the ordinal model did not converge")
+        missing_classes = sorted(set(self.classes_) - set(present))
+        if missing_classes:
+            raise ValueError(f"no labelled issue day has outcome {missing_classes} while higher "
+                             "ones occur; the levels cannot be ordered from these data")
+        result = _fit_ordinal(Zs.to_numpy(), yl, len(self.classes_) - 1)
         k = Zs.shape[1]
         self.feature_names_in_ = list(Zs.columns)
-        self.coef_ = result.params.to_numpy()[:k]
-        self.coef_se_ = result.bse.to_numpy()[:k]
-        self.cuts_ = np.asarray(result.model.transform_threshold_params(result.params))[1:-1]
+        self.coef_ = result.coef
+        self.coef_se_ = np.sqrt(np.diag(result.cov)[:k])
+        self.cuts_ = result.cuts
         self.scaling_ = _Scaling(median, mean, scale, indicators)
-        self.loglike_ = float(result.llf)
+        self.loglike_ = result.loglike
         self.n_train_ = int(len(yl))
         self.class_counts_ = {int(c): int((yl == c).sum()) for c in self.classes_}
         return self

@@ -22,6 +22,7 @@ These conventions are common practice in laboratory reporting, no source.
 
 from __future__ import annotations
 
+import math
 import re
 from dataclasses import dataclass
 
@@ -114,7 +115,7 @@ def parse_count(text: str | None, decimal: str = ".", detection_limit: float | N
         fixed = re.sub(r"[oO]", "0", t)
         value = _number(fixed, decimal)
         flag = "letter_o" if value is not None else ""
-    if value is None:
+    if value is None or not math.isfinite(value):
         return Count(float("nan"), None, reason=f"'{raw}' is not a count: expected a number such "
                                                 "as 1200, 1,200, 1.2E4, <100, >200000, ND or TNTC")
     return Count(value, censor, flag)

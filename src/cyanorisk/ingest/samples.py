@@ -25,7 +25,7 @@ import pandas as pd
 
 from cyanorisk.ingest.counts import CENSOR_ABOVE, CENSOR_BELOW, EXACT, parse_count
 from cyanorisk.ingest.dialects import DATE_ORDERS, sniff_table
-from cyanorisk.ingest.lines import Parsing, read_table, read_text
+from cyanorisk.ingest.lines import Parsing, TextFile, read_table, read_text
 from cyanorisk.ingest.quality import IngestError, Ledger, RowAccount
 from cyanorisk.ingest.stamps import distinct, localize, parse_dates, parse_times
 
@@ -157,7 +157,7 @@ def read_samples(paths: str | Path | Sequence[str | Path], layout: SampleLayout,
     data = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame(columns=RECORD_COLUMNS)
     rejected = sum(len(p) for p in ledger.parts)
     before = _raw_rows(data)
-    data, conflicting = _deduplicate(data, layout.duplicates, ledger)
+    data, conflicting = _deduplicate(data, layout.duplicates, ledger, layout.encoding)
     kept = _raw_rows(data)
     gone = before - kept  # rows all of whose records were merged into or superseded by others
     account = RowAccount(read=read, rejected=rejected, kept=len(kept),
@@ -395,8 +395,8 @@ def _wide_records(cols: dict, layout: SampleLayout, decimal: str, header: list[s
     return frame[reported | (empty_row & first_of_row)]
 
 
-def _deduplicate(data: pd.DataFrame, policy: str,
-                 ledger: Ledger) -> tuple[pd.DataFrame, set[tuple[str, int]]]:
+def _deduplicate(data: pd.DataFrame, policy: str, ledger: Ledger,
+                 encoding: str) -> tuple[pd.DataFrame, set[tuple[str, int]]]:
     """Merge identical records of one sample and taxon; resolve conflicting ones by policy.
 
     Returns the kept records and the raw rows of the superseded conflicting ones.
@@ -419,8 +419,11 @@ def _deduplicate(data: pd.DataFrame, policy: str,
     is_winner = merged.index.isin(winners.index)
     losers = merged[~is_winner]
     conflicting = losers[~identical[~is_winner]]
+    texts: dict[str, TextFile] = {}
     for _, row in conflicting.iterrows():
-        ledger.add(row["file"], np.array([row["line"]]), "", [""], "duplicate_conflict",
+        text = texts.setdefault(row["file"], read_text(Path(row["file"]), encoding))
+        ledger.add(row["file"], np.array([row["line"]]), "", [text.line(int(row["line"]))],
+                   "duplicate_conflict",
                    f"same sample and taxon as {Path(row['file_kept']).name} line "
                    f"{row['line_kept']} with other values; that record was kept")
     out = data.drop(index=losers.index)
@@ -461,8 +464,8 @@ def sample_totals(records: pd.DataFrame, taxa: Mapping[str, Taxon]) -> pd.DataFr
     - if some parts are exact and others censored below, the censored parts count as zero and
       the total stays exact: the true total lies between the sum and the sum plus the limits,
       which ``cyano_upper_cells_per_ml`` records;
-    - if any part is censored above ('>'), the total is censored above at the sum of all parts
-      (the true total is at least that);
+    - if any part is censored above ('>'), the total is censored above at the sum of the exact
+      and the censored-above parts (a lower bound: the true total is at least that);
     - a sample with no cyanobacterial taxon reported has a total of 0, exact, only when the
       sample lists some taxon; taxa missing from the table are not counted and are flagged.
 
@@ -491,7 +494,7 @@ def sample_totals(records: pd.DataFrame, taxa: Mapping[str, Taxon]) -> pd.DataFr
                  _n_below=(r["_cyano"] & below).astype(int),
                  _n_above=(r["_cyano"] & above).astype(int),
                  _toxic_v=np.where(r["_toxic"] & (exact | above), v, 0.0),
-                 _unknown_name=np.where(r["_unknown"], r["taxon"], None))
+                 _unknown_name=np.where(r["_unknown"], r["taxon"], ""))
     g = r.groupby(["site_id", "sample_id"], sort=False)
     out = g.agg(sampled_at=("sampled_at", "first"), reported_at=("reported_at", "first"),
                 exact=("_exact", "sum"), limit=("_limit", "sum"), above=("_above", "sum"),
