@@ -378,16 +378,19 @@ def test_totals_of_the_long_file_with_every_taxon_known():
     t = {r.sample_id: r for r in sample_totals(records, taxa).itertuples(index=False)}
     assert list(t) == ["H0703", "H0710", "H0717", "H0724"]
     expected = {
-        "H0703": (1200.0, "=", 1300.0, 1200.0),  # Microcystis 1200 + Dolichospermum '<100'
-        "H0710": (1800.0, "=", 1900.0, 0.0),  # Aphanizomenon 1800 + Microcystis ND (100)
-        "H0717": (1_000_340.0, ">", math.inf, 1_000_340.0),  # TNTC 1e6 + Planktothrix 340
-        "H0724": (0.0, "=", 0.0, 0.0),  # only Cryptomonas, not a cyanobacterium
+        "H0703": (1200.0, "=", 1300.0, 1200.0, "="),  # Microcystis 1200 + Dolichospermum '<100'
+        # Aphanizomenon 1800 + Microcystis ND (100): the only toxin producer is below detection,
+        # so the toxin-producer count is censored '<100', not an exact 0
+        "H0710": (1800.0, "=", 1900.0, 100.0, "<"),
+        "H0717": (1_000_340.0, ">", math.inf, 1_000_340.0, ">"),  # TNTC 1e6 + Planktothrix 340
+        "H0724": (0.0, "=", 0.0, 0.0, "="),  # only Cryptomonas, not a cyanobacterium
     }
-    for s, (total, censor, upper, toxic) in expected.items():
+    for s, (total, censor, upper, toxic, toxic_censor) in expected.items():
         assert t[s].cyano_censor == censor, s
         assert t[s].cyano_cells_per_ml == pytest.approx(total, rel=RTOL, abs=0.0), s
         assert t[s].cyano_upper_cells_per_ml == pytest.approx(upper, rel=RTOL, abs=0.0), s
         assert t[s].toxic_cells_per_ml == pytest.approx(toxic, rel=RTOL, abs=0.0), s
+        assert t[s].toxic_censor == toxic_censor, s
         assert t[s].unknown_taxa == "", s
 
 

@@ -27,13 +27,17 @@ def known_from(totals: pd.DataFrame, lab_delay_days: float, timezone: str) -> pd
     """The UTC instant from which each result is known to the forecaster.
 
     Reported date when given (already the start of that local day), else the local date of
-    sampling plus ``lab_delay_days``, at the start of that day.
+    sampling plus ``lab_delay_days``, at the start of that day; never before the sample was
+    taken.
     """
     local_day = totals["sampled_at"].dt.tz_convert(timezone).dt.tz_localize(None).dt.normalize()
     by_delay = (local_day + pd.Timedelta(days=lab_delay_days)).dt.tz_localize(
         timezone, nonexistent="shift_forward", ambiguous=False).dt.tz_convert("UTC")
-    reported = totals["reported_at"] if "reported_at" in totals else pd.Series(pd.NaT, index=totals.index)
-    return reported.astype(UTC_NS).where(reported.notna(), by_delay.astype(UTC_NS))
+    reported = (totals["reported_at"] if "reported_at" in totals
+                else pd.Series(pd.NaT, index=totals.index, dtype=UTC_NS))
+    known = reported.astype(UTC_NS).where(reported.notna(), by_delay.astype(UTC_NS))
+    sampled = totals["sampled_at"].astype(UTC_NS)
+    return known.where(known >= sampled, sampled)  # never known before it was taken
 
 
 def level_slug(name: str) -> str:
@@ -56,14 +60,19 @@ def last_known(issues: pd.DataFrame, totals: pd.DataFrame, scheme: Scheme,
     Returns
     -------
     pandas.DataFrame
-        Aligned with ``issues``: ``last_count_cells_per_ml``, ``last_count_censor``,
+        Aligned with ``issues``, for the newest sample whose result is known at issue time:
+        ``last_count_cells_per_ml``, ``last_count_censor``,
         ``last_count_age_days`` (from sampling to issue [d]), ``last_level`` (observed level of
         that sample, 0 below the first), ``last_sampled_at``, ``last_known_at``.
     """
     t = totals.copy()
     t["known_at"] = known_from(t, lab_delay_days, timezone)
     t["level"] = classify(t, scheme)
-    t = t.dropna(subset=["cyano_cells_per_ml"]).sort_values("known_at", kind="stable")
+    t = t.dropna(subset=["cyano_cells_per_ml"]).sort_values(["known_at", "sampled_at"], kind="stable")
+    # the last count is the newest sample known so far: a late result for an older sample does
+    # not replace a newer one already known
+    newest = t.groupby("site_id")["sampled_at"].cummax()
+    t = t[t["sampled_at"] >= newest]
     left = issues[["site_id", "issue_time_utc"]].reset_index(drop=True)
     left["issue_time_utc"] = left["issue_time_utc"].astype(UTC_NS)
     left["_order"] = np.arange(len(left))
@@ -79,8 +88,8 @@ def last_known(issues: pd.DataFrame, totals: pd.DataFrame, scheme: Scheme,
         "last_count_censor": merged["cyano_censor"].to_numpy(),
         "last_count_age_days": age.to_numpy(),
         "last_level": merged["level"].to_numpy(),
-        "last_sampled_at": merged["sampled_at"].to_numpy(),
-        "last_known_at": merged["known_at"].to_numpy(),
+        "last_sampled_at": merged["sampled_at"].array,
+        "last_known_at": merged["known_at"].array,
     }, index=issues.index)
 
 

@@ -16,6 +16,7 @@ from typing import TypeVar
 from cyanorisk import __version__
 from cyanorisk.config import Config, ConfigError, load_config
 from cyanorisk.ingest.quality import IngestError
+from cyanorisk.model import ModelFileError
 
 T = TypeVar("T")
 
@@ -86,6 +87,48 @@ def cmd_features(args: argparse.Namespace) -> int:
     return 0
 
 
+def _training(config: Config):
+    """Ingest every site and build its training table: (weather, samples, table) per site."""
+    from cyanorisk.training import site_training_table
+
+    out = []
+    for weather, samples, _ in _ingest_all(config):
+        table = site_training_table(weather.site, weather.data,
+                                    samples.totals if samples else None)
+        out.append((weather, samples, table))
+    return out
+
+
+def cmd_train(args: argparse.Namespace) -> int:
+    """Fit each site's risk model, save it under models/, print its model card."""
+    from cyanorisk.report.modelcard import model_card_text
+    from cyanorisk.reporting import save_models
+    from cyanorisk.training import fit_site
+
+    config = _config(args)
+    for weather, _, table in _training(config):
+        fitted = fit_site(weather.site, table, cross_validation=not args.no_cv)
+        print(model_card_text(fitted.card, str(save_models(config, fitted))))
+    return 0
+
+
+def cmd_report(args: argparse.Namespace) -> int:
+    """Write each site's daily report (HTML, JSON, text) under reports/."""
+    import pandas as pd
+
+    from cyanorisk.reporting import site_report, write_report
+
+    config = _config(args)
+    as_of = pd.Timestamp(args.as_of) if args.as_of else None
+    for weather, samples, _ in _ingest_all(config):
+        assessment = site_report(config, weather, samples, as_of)
+        paths = write_report(config, assessment)
+        print(assessment.content["headline"])
+        for p in paths:
+            print(f"  wrote {p}")
+    return 0
+
+
 def cmd_check(args: argparse.Namespace) -> int:
     """Validate the configuration and every weather file's layout, without ingesting."""
     from cyanorisk.ingest.dialects import column_plan, sniff_layout
@@ -146,6 +189,11 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--json", action="store_true", help="print the summary as JSON")
     p = command("features", cmd_features, "build the daily drivers and the training table")
     p.add_argument("--csv", action="store_true", help="also write the table as CSV")
+    p = command("train", cmd_train, "fit each site's risk model and print its model card")
+    p.add_argument("--no-cv", action="store_true", help="skip the cross-validation by season")
+    p = command("report", cmd_report, "write each site's daily risk report")
+    p.add_argument("--as-of", metavar="DATE", help="local date to report for (default: the last "
+                                                   "day of the weather record)")
     command("check", cmd_check, "validate the configuration and the layout of every input file")
     return parser
 
@@ -157,7 +205,7 @@ def main(argv: list[str] | None = None) -> int:
     except ConfigError as exc:
         print(f"cyanorisk: {exc}", file=sys.stderr)
         return 2
-    except IngestError as exc:
+    except (IngestError, ModelFileError) as exc:
         print(f"cyanorisk: {exc}", file=sys.stderr)
         return 1
     except OSError as exc:

@@ -292,17 +292,17 @@ class FeatureBuilder:
 
     @staticmethod
     def _quality(weather: pd.DataFrame, var: str) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Usable (not NaN), good (read from the station) and filled masks of a variable."""
         values = weather[var].to_numpy(dtype=float)
-        flags = weather.get(f"{var}_flag")
         usable = ~np.isnan(values)
+        flags = weather.get(f"{var}_flag")
         if flags is None:
             return usable, usable, np.zeros(len(values), dtype=bool)
-        codes = pd.Categorical(flags).codes if not isinstance(flags.dtype, pd.CategoricalDtype) \
-            else flags.cat.codes.to_numpy()
-        names = list(flags.cat.categories) if isinstance(flags.dtype, pd.CategoricalDtype) else []
-        good_codes = [names.index(n) for n in GOOD_FLAGS if n in names]
-        good = np.isin(codes, good_codes) & usable
-        filled = (codes == names.index("filled")) if "filled" in names else np.zeros(len(values), bool)
+        flags = flags.astype("category")  # categorical as written by ingest, or text
+        names = list(flags.cat.categories)
+        codes = flags.cat.codes.to_numpy()
+        good = np.isin(codes, [names.index(n) for n in GOOD_FLAGS if n in names]) & usable
+        filled = codes == names.index("filled") if "filled" in names else np.zeros(len(values), bool)
         return usable, good, filled
 
     def _gate(self, value: np.ndarray, win: _Windowed, good: np.ndarray, days: int) -> np.ndarray:

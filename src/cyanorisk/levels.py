@@ -27,7 +27,8 @@ MEASURES = {
 }
 """Measures a threshold may use: columns of the per-sample table (see ``sample_totals``)."""
 
-CENSOR_COLUMNS = {"cyano_cells_per_ml": "cyano_censor", "microcystin_ug_per_l": "microcystin_censor"}
+CENSOR_COLUMNS = {"cyano_cells_per_ml": "cyano_censor", "toxic_cells_per_ml": "toxic_censor",
+                  "microcystin_ug_per_l": "microcystin_censor"}
 
 
 @dataclass(frozen=True)
@@ -205,3 +206,60 @@ def classify(samples: pd.DataFrame, scheme: Scheme) -> np.ndarray:
         if k == 1:
             decided = ~np.isnan(m)
     return np.where(decided | (level > 0), level, np.nan)
+
+
+# ---------------------------------------------------------------------------------------------
+# Health cautions, in our own words, by level rank and intended use
+# ---------------------------------------------------------------------------------------------
+
+DEFERRAL = ("Advisories, closures and changes to treatment are decided by {authority} under local "
+            "codes. This report supports that decision; it does not make it.")
+"""Printed in every report, with the authority named in the site's configuration."""
+
+GENERAL_CAUTIONS = (
+    "Boiling water does not remove cyanobacterial toxins; it can concentrate them.",
+    "Keep children, pets and livestock away from scums and discoloured water.",
+    "Anyone who feels unwell after contact with the water (skin rash, eye irritation, vomiting, "
+    "diarrhoea, fever) should see a doctor and mention the contact with blue-green algae.",
+)
+
+_CAUTIONS: dict[str, dict[int, tuple[str, ...]]] = {
+    "drinking": {
+        0: ("Routine monitoring: keep the usual sampling schedule.",),
+        1: ("Sample more often (at least weekly) and count toxin-producing taxa.",
+            "Check that treatment can remove cells without breaking them and can remove "
+            "dissolved toxins; consider testing for toxins.",
+            "Consider drawing water from another depth or source if one is available."),
+        2: ("Test for toxins in raw and treated water and act on the results.",
+            "Treatment changes, another source or advice to consumers may be needed: the "
+            "water authority and the health department decide, together.",
+            "Warn staff working on the water body to avoid skin contact with scums."),
+    },
+    "recreation": {
+        0: ("Routine monitoring: keep the usual sampling schedule.",),
+        1: ("Avoid swallowing the water; shower after swimming.",
+            "Avoid areas where scum or discoloured water is seen.",
+            "Sample more often; put up signs if the local authority decides so."),
+        2: ("Avoid swimming, water skiing and any contact with the water; do not let dogs swim "
+            "or drink.",
+            "Do not eat fish guts or shellfish from the water body.",
+            "Closures and warning signs are decided by the local authority."),
+    },
+}
+
+
+def cautions(rank: int, use: str) -> tuple[str, ...]:
+    """Cautions for a level (0 below the first level, 1 the first, 2 or more the higher ones)
+    and an intended use ('drinking' or 'recreation'), then the general cautions."""
+    table = _CAUTIONS.get(use)
+    if table is None:
+        raise KeyError(f"no cautions for use '{use}'; valid: {', '.join(_CAUTIONS)}")
+    own = table[min(max(int(rank), 0), max(table))]
+    return own + (GENERAL_CAUTIONS if rank > 0 else ())
+
+
+def level_name(scheme: Scheme, rank: float | None) -> str:
+    """The name of a level rank (0 is below the first level); 'unknown' when not decided."""
+    if rank is None or rank != rank:
+        return "unknown"
+    return "below " + scheme.levels[0].name if rank == 0 else scheme.levels[int(rank) - 1].name

@@ -435,6 +435,18 @@ def _deduplicate(data: pd.DataFrame, policy: str, ledger: Ledger,
     return out, _raw_rows(conflicting)
 
 
+def _censored_sum(out: pd.DataFrame, group: str) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Total, censor and upper bound of a group of taxa per sample (rules in sample_totals)."""
+    n_exact, n_below, n_above = (out[f"{group}_n_{k}"] for k in ("exact", "below", "above"))
+    exact, limit, above = (out[f"{group}_{k}"] for k in ("exact", "limit", "above"))
+    all_below = (n_below > 0) & (n_exact == 0) & (n_above == 0)
+    any_above = n_above > 0
+    value = np.where(all_below, limit, exact + above)
+    censor = np.where(any_above, CENSOR_ABOVE, np.where(all_below, CENSOR_BELOW, EXACT))
+    upper = np.where(any_above, np.inf, exact + limit)
+    return value, censor, upper
+
+
 @dataclass(frozen=True)
 class Taxon:
     """What the taxon table says of one taxon."""
@@ -469,8 +481,11 @@ def sample_totals(records: pd.DataFrame, taxa: Mapping[str, Taxon]) -> pd.DataFr
     - a sample with no cyanobacterial taxon reported has a total of 0, exact, only when the
       sample lists some taxon; taxa missing from the table are not counted and are flagged.
 
+    The count of known toxin producers (``toxic_cells_per_ml``, ``toxic_censor``) follows the same
+    rules over the taxa the table marks as toxin producers.
+
     Returns columns: site_id, sample_id, sampled_at, reported_at, cyano_cells_per_ml,
-    cyano_censor, cyano_upper_cells_per_ml, toxic_cells_per_ml, biovolume_mm3_per_l,
+    cyano_censor, cyano_upper_cells_per_ml, toxic_cells_per_ml, toxic_censor, biovolume_mm3_per_l,
     chl_a_ug_per_l, microcystin_ug_per_l, microcystin_censor, n_taxa, unknown_taxa.
     """
     if records.empty:
@@ -487,19 +502,19 @@ def sample_totals(records: pd.DataFrame, taxa: Mapping[str, Taxon]) -> pd.DataFr
     below = r["censor"] == CENSOR_BELOW
     above = r["censor"] == CENSOR_ABOVE
     v = r["cells_per_ml"].fillna(0.0)
-    r = r.assign(_exact=np.where(r["_cyano"] & exact, v, 0.0),
-                 _limit=np.where(r["_cyano"] & below, v, 0.0),
-                 _above=np.where(r["_cyano"] & above, v, 0.0),
-                 _n_exact=(r["_cyano"] & exact).astype(int),
-                 _n_below=(r["_cyano"] & below).astype(int),
-                 _n_above=(r["_cyano"] & above).astype(int),
-                 _toxic_v=np.where(r["_toxic"] & (exact | above), v, 0.0),
-                 _unknown_name=np.where(r["_unknown"], r["taxon"], ""))
+    parts = {}
+    for group in ("_cyano", "_toxic"):
+        sel = r[group]
+        parts.update({f"{group}_exact": np.where(sel & exact, v, 0.0),
+                      f"{group}_limit": np.where(sel & below, v, 0.0),
+                      f"{group}_above": np.where(sel & above, v, 0.0),
+                      f"{group}_n_exact": (sel & exact).astype(int),
+                      f"{group}_n_below": (sel & below).astype(int),
+                      f"{group}_n_above": (sel & above).astype(int)})
+    r = r.assign(**parts, _unknown_name=np.where(r["_unknown"], r["taxon"], ""))
     g = r.groupby(["site_id", "sample_id"], sort=False)
     out = g.agg(sampled_at=("sampled_at", "first"), reported_at=("reported_at", "first"),
-                exact=("_exact", "sum"), limit=("_limit", "sum"), above=("_above", "sum"),
-                n_exact=("_n_exact", "sum"), n_below=("_n_below", "sum"),
-                n_above=("_n_above", "sum"), toxic_cells_per_ml=("_toxic_v", "sum"),
+                **{k: (k, "sum") for k in parts},
                 biovolume_mm3_per_l=("biovolume_mm3_per_l", "max"),
                 chl_a_ug_per_l=("chl_a_ug_per_l", "max"),
                 microcystin_ug_per_l=("microcystin_ug_per_l", "max"),
@@ -508,15 +523,12 @@ def sample_totals(records: pd.DataFrame, taxa: Mapping[str, Taxon]) -> pd.DataFr
                 n_taxa=("taxon", lambda s: int((s != "").sum())),
                 unknown_taxa=("_unknown_name", lambda s: ", ".join(sorted({x for x in s if x}))),
                 ).reset_index()
-    all_below = (out["n_below"] > 0) & (out["n_exact"] == 0) & (out["n_above"] == 0)
-    any_above = out["n_above"] > 0
-    out["cyano_cells_per_ml"] = np.where(all_below, out["limit"],
-                                         out["exact"] + out["above"])
-    out["cyano_censor"] = np.where(any_above, CENSOR_ABOVE, np.where(all_below, CENSOR_BELOW, EXACT))
-    out["cyano_upper_cells_per_ml"] = np.where(any_above, np.inf, out["exact"] + out["limit"])
     nothing = out["n_counted"] == 0  # no count at all: the total is unknown, not zero
-    out.loc[nothing, ["cyano_cells_per_ml", "cyano_upper_cells_per_ml", "toxic_cells_per_ml"]] = np.nan
-    out.loc[nothing, "cyano_censor"] = None
-    out = out.drop(columns=["exact", "limit", "above", "n_exact", "n_below", "n_above", "n_counted"])
+    for group, name in (("_cyano", "cyano"), ("_toxic", "toxic")):
+        value, censor, upper = _censored_sum(out, group)
+        out[f"{name}_cells_per_ml"] = np.where(nothing, np.nan, value)
+        out[f"{name}_censor"] = np.where(nothing, None, censor)
+        out[f"{name}_upper_cells_per_ml"] = np.where(nothing, np.nan, upper)
+    out = out.drop(columns=list(parts) + ["n_counted", "toxic_upper_cells_per_ml"])
     return out.sort_values(
         ["site_id", "sampled_at"], ignore_index=True)

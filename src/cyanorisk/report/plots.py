@@ -1,0 +1,74 @@
+"""Plots for the daily report. Each takes ``ax=`` and returns it; nothing here computes."""
+
+from __future__ import annotations
+
+import matplotlib
+
+matplotlib.use("Agg")  # reports are files; no screen needed
+
+import matplotlib.dates as mdates
+import matplotlib.pyplot as plt
+import numpy as np
+import pandas as pd
+
+LEVEL_COLOURS = ["#b8860b", "#8b0000", "#4b0082"]
+"""Line colours for the first, second and third level (our own palette)."""
+
+
+def counts_plot(counts: pd.DataFrame, levels: list[tuple[str, float]], tz: str, ax=None):
+    """Cell counts on a log axis with the scheme's level lines; censored values marked."""
+    ax = ax or plt.gca()
+    if len(counts):
+        t = counts["sampled_at"].dt.tz_convert(tz).dt.tz_localize(None)
+        v = counts["cyano_cells_per_ml"].astype(float).clip(lower=1.0)
+        exact = (counts["cyano_censor"] == "=").to_numpy()
+        below = (counts["cyano_censor"] == "<").to_numpy()
+        above = (counts["cyano_censor"] == ">").to_numpy()
+        ax.plot(t[exact], v[exact], "o-", color="#1f4e79", ms=4, lw=1, label="count")
+        ax.plot(t[below], v[below], "v", color="#7f7f7f", ms=6, ls="none",
+                label="below detection (value is the limit)")
+        ax.plot(t[above], v[above], "^", color="#c00000", ms=6, ls="none",
+                label="above counting limit")
+    for (name, value), colour in zip(levels, LEVEL_COLOURS, strict=False):
+        ax.axhline(value, color=colour, ls="--", lw=1)
+        ax.annotate(f"{name} ({value:,.0f})", xy=(0.01, value), xycoords=("axes fraction", "data"),
+                    va="bottom", fontsize=7, color=colour)
+    ax.set_yscale("log")
+    ax.set_ylabel("cyanobacteria [cells/mL]")
+    ax.set_title("Cell counts known at issue time, last 120 days", fontsize=9)
+    ax.legend(fontsize=7, loc="upper left", bbox_to_anchor=(0, 0.92))
+    ax.xaxis.set_major_formatter(mdates.DateFormatter("%d %b"))
+    return ax
+
+
+def probability_plot(history: pd.DataFrame, names: list[str], warn_at: dict[str, float], ax=None):
+    """Probability of reaching each level within the horizon, per issue day."""
+    ax = ax or plt.gca()
+    for name, colour in zip(names, LEVEL_COLOURS, strict=False):
+        ax.plot(history["issue_date"], history[name], color=colour, lw=1.5, label=name)
+        ax.axhline(warn_at.get(name, 0.5), color=colour, ls=":", lw=1)
+    ax.set_ylim(0, 1)
+    ax.set_ylabel("probability")
+    ax.set_title("Probability of reaching each level (dotted: warning thresholds)", fontsize=9)
+    ax.legend(fontsize=7, loc="upper left")
+    ax.xaxis.set_major_formatter(mdates.DateFormatter("%d %b"))
+    return ax
+
+
+def drivers_plot(history: pd.DataFrame, axes=None):
+    """Weather drivers: degree-days, wind run, calm hours, rain (one panel each)."""
+    panels = [("degree_days_20c_7d", "degree-days above 20 degC, 7 d"),
+              ("wind_run_km_1d", "wind run [km/day]"),
+              ("calm_hours_3d", "calm hours, 3 d"), ("rain_mm_1d", "rain [mm/day]")]
+    if axes is None:
+        _, axes = plt.subplots(len(panels), 1, sharex=True)
+    for ax, (col, label) in zip(np.ravel(axes), panels, strict=True):
+        if col in history:
+            if col.startswith("rain"):
+                ax.bar(history["issue_date"], history[col], color="#2e75b6", width=0.8)
+            else:
+                ax.plot(history["issue_date"], history[col], color="#404040", lw=1)
+        ax.set_ylabel(label, fontsize=7)
+        ax.tick_params(labelsize=7)
+    np.ravel(axes)[-1].xaxis.set_major_formatter(mdates.DateFormatter("%d %b"))
+    return axes

@@ -1,0 +1,108 @@
+"""Orchestration of the daily report: models from models/, data from ingest, files to reports/."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+import pandas as pd
+
+from cyanorisk.atomic import write_group
+from cyanorisk.config import Config, Site
+from cyanorisk.features import issue_instants
+from cyanorisk.forecast import Assessment, Models, Thresholds, assess
+from cyanorisk.ingest.sites import SiteSamples, SiteWeather
+from cyanorisk.model import ModelFileError, load_bundle, save_bundle
+from cyanorisk.report.daily import render_html, render_json, render_text, report_stem
+from cyanorisk.training import FittedSite
+
+DEFAULT_WARN_AT = 0.5
+
+
+def model_path(config: Config, site_id: str) -> Path:
+    return config.models_dir / f"{site_id}.json"
+
+
+def save_models(config: Config, fitted: FittedSite) -> Path:
+    """Write a site's model bundle atomically under models/."""
+    path = model_path(config, fitted.site.id)
+    text = save_bundle(path, fitted.bundle())
+    write_group({path: lambda tmp: tmp.write_text(text, encoding="utf-8")})
+    return path
+
+
+def load_models(config: Config, site: Site) -> Models:
+    """A site's saved models. Raises ModelFileError naming the file when absent or unusable."""
+    path = model_path(config, site.id)
+    if not path.exists():
+        raise ModelFileError(f"{path}: no model for site '{site.id}'; run `cyanorisk train "
+                             f"--config {config.path}` first")
+    body = load_bundle(path)
+    if body.get("site_id") != site.id:
+        raise ModelFileError(f"{path}: this model belongs to site '{body.get('site_id')}', "
+                             f"not '{site.id}'")
+    return Models.from_bundle(body)
+
+
+def thresholds_for(config: Config, site: Site) -> Thresholds:
+    """Warning thresholds of a site: tuned ones when a tuning file exists, else the default."""
+    names = site.alert_scheme().names
+    return Thresholds({n: DEFAULT_WARN_AT for n in names},
+                      f"default: {DEFAULT_WARN_AT:.0%} for every level (not tuned for this site)")
+
+
+def quality_notes(weather: SiteWeather, samples: SiteSamples | None,
+                  issue: pd.Timestamp) -> dict[str, Any]:
+    """Data-quality notes for the report: fills and gaps of the last 7 days, rejects."""
+    notes = []
+    recent = weather.data[(weather.data.index < issue)
+                          & (weather.data.index >= issue - pd.Timedelta(days=7))]
+    for col in [c for c in recent.columns if c.endswith("_flag")]:
+        flags = recent[col].astype(str)
+        filled, missing = int((flags == "filled").sum()), int((flags == "missing").sum())
+        if filled or missing:
+            notes.append(f"{col[:-5]}: {filled} value(s) filled and {missing} missing in the "
+                         "last 7 days")
+    a = weather.meta.account
+    if a.rejected:
+        notes.append(f"weather ingest rejected {a.rejected} row(s) of {a.read:,}; see the rejects "
+                     "ledger")
+    if samples is not None and samples.meta.account.rejected:
+        notes.append(f"lab ingest rejected {samples.meta.account.rejected} row(s); see the "
+                     "rejects ledger")
+    if not notes:
+        notes.append("no fills, gaps or rejected rows in the data behind this report")
+    return {"notes": notes, "weather_rows": a.as_dict(),
+            "sample_rows": samples.meta.account.as_dict() if samples else None}
+
+
+def default_as_of(weather: SiteWeather) -> pd.Timestamp:
+    """The last local day whose issue time the weather record reaches."""
+    last = weather.data.index[-1] if len(weather.data) else pd.Timestamp.now(tz="UTC")
+    return last.tz_convert(weather.site.timezone).tz_localize(None).normalize()
+
+
+def site_report(config: Config, weather: SiteWeather, samples: SiteSamples | None,
+                as_of: pd.Timestamp | None) -> Assessment:
+    site = weather.site
+    models = load_models(config, site)
+    day = as_of if as_of is not None else default_as_of(weather)
+    issue = issue_instants(pd.DatetimeIndex([day]), site.timezone, site.drivers.issue_time)[0]
+    totals = samples.totals if samples is not None else pd.DataFrame(
+        columns=["site_id", "sample_id", "sampled_at", "reported_at", "cyano_cells_per_ml",
+                 "cyano_censor"])
+    return assess(site, models, weather.data, totals, day, thresholds_for(config, site),
+                  quality_notes(weather, samples, issue))
+
+
+def write_report(config: Config, assessment: Assessment) -> list[Path]:
+    """Write the HTML, JSON and text renderings atomically, as a group, under reports/<site>/."""
+    stem = report_stem(assessment.content)
+    folder = config.reports_dir / assessment.content["site"]["id"]
+    page, doc, text = render_html(assessment), render_json(assessment), render_text(assessment)
+    return write_group({
+        folder / f"{stem}.html": lambda tmp: tmp.write_text(page, encoding="utf-8"),
+        folder / f"{stem}.json": lambda tmp: tmp.write_text(doc, encoding="utf-8"),
+        folder / f"{stem}.txt": lambda tmp: tmp.write_text(text, encoding="utf-8"),
+    })
+
