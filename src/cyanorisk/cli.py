@@ -99,31 +99,31 @@ def _training(config: Config):
     return out
 
 
-def cmd_train(args: argparse.Namespace) -> int:
+def cmd_train(args: argparse.Namespace, prepared: list | None = None) -> int:
     """Fit each site's risk model, save it under models/, print its model card."""
     from cyanorisk.report.modelcard import model_card_text
     from cyanorisk.reporting import save_models
     from cyanorisk.training import fit_site
 
     config = _config(args)
-    for weather, _, table in _training(config):
-        fitted = fit_site(weather.site, table, cross_validation=not args.no_cv)
+    for weather, _, table in prepared or _training(config):
+        fitted = fit_site(weather.site, table, cross_validation=not getattr(args, "no_cv", False))
         print(model_card_text(fitted.card, str(save_models(config, fitted))))
     return 0
 
 
-def cmd_report(args: argparse.Namespace) -> int:
+def cmd_report(args: argparse.Namespace, prepared: list | None = None) -> int:
     """Write each site's daily report (HTML, JSON, text) under reports/."""
     import pandas as pd
 
     from cyanorisk.reporting import site_report, write_report
 
     config = _config(args)
-    as_of = pd.Timestamp(args.as_of) if args.as_of else None
-    for weather, samples, _ in _ingest_all(config):
+    as_of = pd.Timestamp(args.as_of) if getattr(args, "as_of", None) else None
+    for weather, samples, *_ in prepared or _ingest_all(config):
         assessment = site_report(config, weather, samples, as_of)
         paths = write_report(config, assessment)
-        print(assessment.content["headline"])
+        print(f"{weather.site.name}: {assessment.content['headline']}")
         for p in paths:
             print(f"  wrote {p}")
     return 0
@@ -150,8 +150,11 @@ def cmd_check(args: argparse.Namespace) -> int:
 
 
 def cmd_demo(args: argparse.Namespace) -> int:
-    """Generate the demo reservoir's data, then ingest it."""
+    """Generate the demo reservoir's data, then run the whole job on it: ingest, drivers,
+    training, and the report for the last day."""
     from cyanorisk.demo import write_demo
+    from cyanorisk.report.ingest_summary import summary_text
+    from cyanorisk.training import label_balance, site_training_table
 
     config = _config(args, check_files=False)
     if config.demo is None:
@@ -160,10 +163,19 @@ def cmd_demo(args: argparse.Namespace) -> int:
     files = write_demo(config.demo.out_dir, years, config.demo.seed)
     print(f"demo: wrote {len(files.weather)} weather export(s) and {len(files.samples)} lab "
           f"sheet(s) for Tallowbark Reservoir ({years} years) under {config.demo.out_dir}")
-    args.json = False
-    args.csv = False
-    cmd_ingest(args)
-    return cmd_features(args)
+    config = _config(args)
+    prepared = []
+    for weather, samples, outputs in _ingest_all(config):
+        print(summary_text(weather, samples, outputs))
+        table = site_training_table(weather.site, weather.data, samples.totals if samples else None)
+        balance = label_balance(table, weather.site.model.horizon_days)
+        print(f"  training table: {table.shape[0]:,} issue days x {table.shape[1]} columns; "
+              + "; ".join(f"{k}: {v['1']:,} reached, {v['0']:,} not" for k, v in balance.items()))
+        prepared.append((weather, samples, table))
+    cmd_train(args, prepared)
+    args.as_of = None
+    cmd_report(args, prepared)
+    return 0
 
 
 def build_parser() -> argparse.ArgumentParser:

@@ -26,8 +26,13 @@ from cyanorisk.compass import POINTS_16
 SITE_ID = "tallowbark"
 TIMEZONE = "Australia/Melbourne"
 """A real zone with daylight saving, so the exports carry the repeated and skipped hours."""
-START = "2013-07-01"
-"""The station's first day (local); the demo seasons run July to June."""
+SIM_START = "2005-07-01"
+SIM_YEARS = 20
+"""The weather and the blooms are simulated over these 20 years (local time) and the demo keeps
+its last years, so that the random streams, and so the story, do not depend on how many years
+are asked for."""
+END = "2025-01-28 06:00"
+"""The end of the demo record (local): the morning of a report in the middle of a bloom season."""
 
 
 @dataclass(frozen=True)
@@ -40,7 +45,26 @@ class DemoFiles:
     """Lab result sheets: an older lab reporting cells/L, then the current one in cells/mL."""
 
 
+def demo_window(years: float) -> tuple[pd.Timestamp, pd.Timestamp]:
+    """The UTC span [start, end) of a demo record of ``years`` years ending at :data:`END`."""
+    end = pd.Timestamp(END, tz=TIMEZONE)
+    start = end - pd.DateOffset(years=int(years), days=int(round((years % 1) * 365.25)))
+    if start < pd.Timestamp(SIM_START, tz=TIMEZONE):
+        raise ValueError(f"the demo has at most {SIM_YEARS - 0.5:g} years of data")
+    return start.tz_convert("UTC"), end.tz_convert("UTC")
+
+
 def simulate_weather(years: int, seed: int) -> pd.DataFrame:
+    """The demo's half-hourly weather record (UTC grid, canonical units) of ``years`` years.
+
+    The full :data:`SIM_YEARS` are simulated and the last ``years`` before :data:`END` kept.
+    """
+    start, end = demo_window(years)
+    full = _simulate_weather(seed)
+    return full[(full.index >= start) & (full.index < end)]
+
+
+def _simulate_weather(seed: int) -> pd.DataFrame:
     """A half-hourly weather record on a UTC grid, in canonical units.
 
     Seasonal and daily cycles of temperature, day-to-day (synoptic) anomalies as an AR(1)
@@ -49,8 +73,8 @@ def simulate_weather(years: int, seed: int) -> pd.DataFrame:
     that lags the air by about two weeks. Plausible, not a climate model.
     """
     rng = np.random.default_rng(seed)
-    start = pd.Timestamp(START, tz=TIMEZONE).tz_convert("UTC")
-    idx = pd.date_range(start, periods=int(years * 365.25 * 48), freq="30min")
+    start = pd.Timestamp(SIM_START, tz=TIMEZONE).tz_convert("UTC")
+    idx = pd.date_range(start, periods=int(SIM_YEARS * 365.25 * 48), freq="30min")
     n = len(idx)
     local = idx.tz_convert(TIMEZONE)
     doy = local.day_of_year.to_numpy()
@@ -171,6 +195,16 @@ OTHER_TAXA = {"Aulacoseira granulata": 1500.0, "Cryptomonas ovata": 400.0}
 
 
 def simulate_cyanobacteria(weather: pd.DataFrame, seed: int) -> pd.Series:
+    """The daily cyanobacterial total [cells mL-1] of the days the ``weather`` record covers,
+    simulated over the full demo span (see :func:`_bloom_dynamics`) so it does not depend on
+    the record's length."""
+    full = _bloom_dynamics(_simulate_weather(seed), seed)
+    local = weather.index.tz_convert(TIMEZONE)
+    first, last = local[0].normalize(), local[-1].normalize()
+    return full[(full.index >= first) & (full.index <= last)]
+
+
+def _bloom_dynamics(weather: pd.DataFrame, seed: int) -> pd.Series:
     """Daily cyanobacterial total [cells mL-1] driven by the demo weather.
 
     Net growth on the log scale: growth rises with water temperature from nothing at 12 degC

@@ -15,6 +15,7 @@ from typing import Any
 import matplotlib.pyplot as plt
 
 from cyanorisk.forecast import STATUS_ASSESSED, Assessment
+from cyanorisk.report.labels import driver_label
 from cyanorisk.report.plots import counts_plot, drivers_plot, probability_plot
 
 CSS = """
@@ -87,7 +88,7 @@ def render_html(a: Assessment) -> str:
         + ("n/a" if f["persistence"][n] is None else f"{f['persistence'][n]:.0%}")
         + "</td></tr>" for n in c["scheme"]["levels"])
     drivers = "".join(
-        f"<tr><td>{e(d['driver'])}</td><td>{d['value']:.3g}</td><td>{e(d['direction'])} the "
+        f"<tr><td>{e(driver_label(d['driver']))}</td><td>{d['value']:.3g}</td><td>{e(d['direction'])} the "
         f"risk</td><td>{d['log_odds']:+.2f}</td></tr>" for d in f["drivers"])
     quality = "".join(f"<li>{e(str(q))}</li>" for q in c["quality"].get("notes", [])) or \
         "<li>No data-quality notes.</li>"
@@ -169,7 +170,7 @@ def render_text(a: Assessment) -> str:
     lo, hi = f["interval_80_cells_per_ml"]
     lines.append(f"Expected count: {f['expected_cells_per_ml']:,.0f} cells/mL "
                  f"(80% interval {lo:,.0f} to {hi:,.0f}).")
-    lines.append("Main drivers: " + "; ".join(f"{d['driver']} {d['direction']} the risk"
+    lines.append("Main drivers: " + "; ".join(f"{driver_label(d['driver'])} {d['direction']} the risk"
                                               for d in f["drivers"][:3]))
     lines += ["", "Cautions:"] + [f"- {x}" for x in c["cautions"]]
     lines += ["", c["deferral"]]

@@ -68,7 +68,7 @@ def drivers_plot(history: pd.DataFrame, axes=None):
                 ax.bar(history["issue_date"], history[col], color="#2e75b6", width=0.8)
             else:
                 ax.plot(history["issue_date"], history[col], color="#404040", lw=1)
-        ax.set_ylabel(label, fontsize=7)
+        ax.set_title(label, fontsize=7, loc="left", pad=2)
         ax.tick_params(labelsize=7)
     np.ravel(axes)[-1].xaxis.set_major_formatter(mdates.DateFormatter("%d %b"))
     return axes
