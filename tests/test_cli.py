@@ -242,8 +242,9 @@ def test_demo_runs_end_to_end(tmp_path, capsys):
     assert main(["demo", "--config", str(config), "--years", "1"]) == 0
     out = capsys.readouterr().out
     exports = sorted((tmp_path / "demo_data" / "tallowbark" / "weather").glob("*.txt"))
-    # One export per calendar year (demo.write_demo): a year from July 2013 spans two.
-    assert [p.name for p in exports] == ["tallowbark_aws_2013.txt", "tallowbark_aws_2014.txt"]
+    # One export per calendar year (demo.write_demo): the year before demo.END
+    # (2025-01-28 06:00 local) spans two.
+    assert [p.name for p in exports] == ["tallowbark_aws_2024.txt", "tallowbark_aws_2025.txt"]
     assert f"demo: wrote {len(exports)} weather export(s)" in out
     assert "Tallowbark Reservoir (tallowbark): weather from" in out
     # The summary's weather row count equals the data lines in the exports (title and header
@@ -256,10 +257,10 @@ def test_demo_runs_end_to_end(tmp_path, capsys):
     assert str(tmp_path / "work" / "tallowbark" / "weather.parquet") in written
     assert [w for w in written if not Path(w).is_file()] == []
     series = pd.read_parquet(tmp_path / "work" / "tallowbark" / "weather.parquet")
-    # demo.START is 2013-07-01 local (AEST, UTC+10); one year is int(365.25 * 48) half-hours
-    # (demo.simulate_weather).
-    assert series.index[0] == pd.Timestamp("2013-06-30 14:00", tz="UTC")
-    assert len(series) == int(365.25 * 48)
+    # One year back from 2025-01-28 06:00 AEDT (UTC+11) is 2024-01-28 06:00 AEDT: 366 days of
+    # half-hours, 2024 being a leap year (demo.demo_window).
+    assert series.index[0] == pd.Timestamp("2024-01-27 19:00", tz="UTC")
+    assert len(series) == 366 * 48
     steps = np.diff(series.index.asi8)
     assert (steps == pd.Timedelta("30min").value).all()
     # The demo writes a few rows mangled by hand (demo.logger_export): they reach the ledger.

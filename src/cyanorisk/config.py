@@ -38,7 +38,7 @@ from cyanorisk.ingest.dialects import (
 )
 from cyanorisk.ingest.samples import SampleLayout, Taxon
 from cyanorisk.ingest.weather import BAD_ROW_POLICIES, DUPLICATE_POLICIES, OFF_GRID_POLICIES
-from cyanorisk.levels import SCHEMES, Scheme
+from cyanorisk.levels import SCHEMES, Scheme, custom_scheme
 from cyanorisk.levels import scheme as preset_scheme
 from cyanorisk.units import conversion
 
@@ -130,9 +130,13 @@ class Site:
     authority: str = "the local water authority"
     """Who decides advisories, closures and treatment changes (named in every report)."""
 
+    custom_scheme: Scheme | None = None
+    """A scheme defined under [schemes] in the configuration, when ``scheme`` names one."""
+
     def alert_scheme(self) -> Scheme:
-        """The site's scheme, restricted to its measures."""
-        return preset_scheme(self.scheme).using(self.measures)
+        """The site's scheme (a preset or a custom one), restricted to its measures."""
+        base = self.custom_scheme if self.custom_scheme is not None else preset_scheme(self.scheme)
+        return base.using(self.measures)
 
 
 @dataclass(frozen=True)
@@ -204,7 +208,7 @@ def load_config(path: str | Path | None = None, *, check_files: bool = True) -> 
 
 
 _TOP = {"root", "data_dir", "reports_dir", "models_dir", "ingest", "dialects", "sample_layouts",
-        "taxa", "sites", "demo"}
+        "taxa", "schemes", "sites", "demo"}
 _DIALECT = {"separator", "decimal", "encoding", "skip_lines", "date_column", "time_column",
             "timestamp_column", "date_order", "stamp_zone", "stamp_marks", "missing", "columns",
             "other_columns", "coerce_year"}
@@ -265,6 +269,8 @@ class _Reader:
         taxa = {name: self.record(table, Taxon, f"taxa.{name}")
                 for name, table in self.get(raw, "taxa", dict, "", {}).items()}
         self.layouts = layouts
+        self.schemes = {name: self.custom(table, name)
+                        for name, table in self.get(raw, "schemes", dict, "", {}).items()}
         sites_raw = self.get(raw, "sites", list, "")
         if not sites_raw:
             raise self.fail("sites", "no site is configured; add a [[sites]] table")
@@ -288,6 +294,31 @@ class _Reader:
             models_dir=self.path(self.get(raw, "models_dir", str, "", "models")),
             ingest=ingest, dialects=dialects, sites=sites, demo=demo, raw=raw,
             layouts=layouts, taxa=taxa)
+
+    def custom(self, table: Any, name: str) -> Scheme:
+        """A custom alert-level scheme: title, use, source, year and ordered levels."""
+        where = f"schemes.{name}"
+        if not isinstance(table, dict):
+            raise self.fail(where, f"expected a table, got {type(table).__name__}")
+        if name in SCHEMES:
+            raise self.fail(where, f"'{name}' is the name of a preset scheme; choose another name")
+        self.keys(table, {"title", "use", "source", "year", "levels"}, where)
+        levels = self.get(table, "levels", dict, where)
+        if not levels:
+            raise self.fail(f"{where}.levels", "no level defined; add e.g. "
+                                               "\"Alert\" = { cyano_cells_per_ml = 5000 }")
+        for level, thresholds in levels.items():
+            if not isinstance(thresholds, dict) or not thresholds:
+                raise self.fail(f"{where}.levels.{level}", "expected a table of measure = threshold")
+            for measure, value in thresholds.items():
+                self.typed(value, float, f"{where}.levels.{level}.{measure}")
+        try:
+            return custom_scheme(name, self.get(table, "title", str, where, name),
+                                 self.choice(table, "use", USES, where, "drinking"),
+                                 self.get(table, "source", str, where, "site configuration"),
+                                 levels, self.get(table, "year", int, where, 0))
+        except ValueError as exc:
+            raise self.fail(f"{where}.levels", str(exc)) from None
 
     def record(self, table: Any, cls: type, where: str) -> Any:
         """Build a settings dataclass from a table, checking each key against its fields."""
@@ -435,12 +466,14 @@ class _Reader:
                               f"{where}.drivers")
         alerts = self.get(table, "alerts", dict, where, {})
         self.keys(alerts, {"scheme", "measures"}, f"{where}.alerts")
-        scheme = self.choice(alerts, "scheme", tuple(SCHEMES), f"{where}.alerts", "who1999_drinking")
+        scheme = self.choice(alerts, "scheme", tuple(SCHEMES) + tuple(self.schemes),
+                             f"{where}.alerts", "who1999_drinking")
+        custom = self.schemes.get(scheme)
         measures = None
         if "measures" in alerts:
             measures = self.typed(alerts["measures"], tuple[str, ...], f"{where}.alerts.measures")
             try:
-                preset_scheme(scheme).using(measures)
+                (custom or preset_scheme(scheme)).using(measures)
             except ValueError as exc:
                 raise self.fail(f"{where}.alerts.measures", str(exc)) from None
         return Site(
@@ -448,7 +481,7 @@ class _Reader:
             timezone=tz, use=self.choice(table, "use", USES, where, "drinking"),
             interval=interval,
             weather=WeatherSource(tuple(patterns), tuple(files), dialect, period),
-            samples=samples, drivers=drivers, scheme=scheme, measures=measures,
+            samples=samples, drivers=drivers, scheme=scheme, measures=measures, custom_scheme=custom,
             model=self.record(self.get(table, "model", dict, where, {}), ModelSettings,
                               f"{where}.model"),
             authority=self.get(table, "authority", str, where, "the local water authority"))

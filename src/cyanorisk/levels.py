@@ -39,7 +39,8 @@ class Threshold:
     value: float
     inclusive: bool = True
     status: str = "V"
-    """'V' verified (primary or secondary source), 'M' from memory, 'C' computed."""
+    """'V' verified (primary or secondary source), 'M' from memory, 'C' computed, 'S' set by
+    the site's configuration."""
 
 
 @dataclass(frozen=True)
@@ -160,7 +161,7 @@ def custom_scheme(key: str, title: str, use: str, source: str, levels: Mapping[s
             if measure not in MEASURES:
                 raise ValueError(f"level '{name}': unknown measure '{measure}'; valid: "
                                  f"{', '.join(MEASURES)}")
-        built.append(Level(name, tuple(_t(m, float(v), "C") for m, v in thresholds.items())))
+        built.append(Level(name, tuple(_t(m, float(v), "S") for m, v in thresholds.items())))
     return Scheme(key, title, use, source, year, tuple(built))
 
 

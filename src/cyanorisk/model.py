@@ -258,7 +258,8 @@ class RiskModel:
         k = Zs.shape[1]
         self.feature_names_in_ = list(Zs.columns)
         self.coef_ = result.coef
-        self.coef_se_ = np.sqrt(np.diag(result.cov)[:k])
+        var = np.diag(result.cov)[:k]
+        self.coef_se_ = np.sqrt(np.where(var >= 0, var, np.nan))  # NaN if the Hessian is singular
         self.cuts_ = result.cuts
         self.scaling_ = _Scaling(median, mean, scale, indicators)
         self.loglike_ = result.loglike
