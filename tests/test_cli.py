@@ -243,7 +243,7 @@ def test_demo_runs_end_to_end(tmp_path, capsys):
     out = capsys.readouterr().out
     exports = sorted((tmp_path / "demo_data" / "tallowbark" / "weather").glob("*.txt"))
     # One export per calendar year (demo.write_demo): the year before demo.END
-    # (2025-01-28 06:00 local) spans two.
+    # (2025-01-14 06:00 local) spans two.
     assert [p.name for p in exports] == ["tallowbark_aws_2024.txt", "tallowbark_aws_2025.txt"]
     assert f"demo: wrote {len(exports)} weather export(s)" in out
     assert "Tallowbark Reservoir (tallowbark): weather from" in out
@@ -257,9 +257,9 @@ def test_demo_runs_end_to_end(tmp_path, capsys):
     assert str(tmp_path / "work" / "tallowbark" / "weather.parquet") in written
     assert [w for w in written if not Path(w).is_file()] == []
     series = pd.read_parquet(tmp_path / "work" / "tallowbark" / "weather.parquet")
-    # One year back from 2025-01-28 06:00 AEDT (UTC+11) is 2024-01-28 06:00 AEDT: 366 days of
+    # One year back from 2025-01-14 06:00 AEDT (UTC+11) is 2024-01-14 06:00 AEDT: 366 days of
     # half-hours, 2024 being a leap year (demo.demo_window).
-    assert series.index[0] == pd.Timestamp("2024-01-27 19:00", tz="UTC")
+    assert series.index[0] == pd.Timestamp("2024-01-13 19:00", tz="UTC")
     assert len(series) == 366 * 48
     steps = np.diff(series.index.asi8)
     assert (steps == pd.Timedelta("30min").value).all()

@@ -26,12 +26,12 @@ from cyanorisk.compass import POINTS_16
 SITE_ID = "tallowbark"
 TIMEZONE = "Australia/Melbourne"
 """A real zone with daylight saving, so the exports carry the repeated and skipped hours."""
-SIM_START = "2005-07-01"
-SIM_YEARS = 20
-"""The weather and the blooms are simulated over these 20 years (local time) and the demo keeps
+SIM_START = "2003-07-01"
+SIM_YEARS = 22
+"""The weather and the blooms are simulated over these 22 years (local time) and the demo keeps
 its last years, so that the random streams, and so the story, do not depend on how many years
 are asked for."""
-END = "2025-01-28 06:00"
+END = "2025-01-14 06:00"
 """The end of the demo record (local): the morning of a report in the middle of a bloom season."""
 
 

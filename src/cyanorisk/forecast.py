@@ -134,10 +134,14 @@ def assess(site: Site, models: Models, weather: pd.DataFrame, totals: pd.DataFra
     rank = forecast_rank(p_today, thresholds, names) if status == STATUS_ASSESSED else None
     observed_rank = None if not sample_known else float(last["last_level"])
     caution_rank = rank if rank is not None else int(observed_rank or 0)
-    shown = names[max(rank, 1) - 1] if rank is not None else None
+    shown = names[max(rank, 1) - 1] if rank is not None else None  # the level the headline quotes
     if status == STATUS_ASSESSED:
-        headline = (f"{level_name(scheme, rank)}: probability {p_today[shown]:.0%} of reaching "
-                    f"{shown} within {models.risk.horizon_days} days")
+        h = models.risk.horizon_days
+        headline = (f"Forecast {level_name(scheme, rank)}: probability {p_today[shown]:.0%} of "
+                    f"reaching {shown} within {h} days")
+        if rank >= 1 and rank < len(names):
+            nxt = names[rank]
+            headline += f"; {p_today[nxt]:.0%} for {nxt}"
     else:
         headline = "Insufficient data: " + "; ".join(reasons) + ". No forecast level is given."
     explanation = models.risk.explain(today, top=5)[0]
