@@ -14,6 +14,7 @@ from pathlib import Path
 from typing import TypeVar
 
 from cyanorisk import __version__
+from cyanorisk.backtest import BacktestError
 from cyanorisk.config import Config, ConfigError, load_config
 from cyanorisk.ingest.quality import IngestError
 from cyanorisk.model import ModelFileError
@@ -129,6 +130,67 @@ def cmd_report(args: argparse.Namespace, prepared: list | None = None) -> int:
     return 0
 
 
+def cmd_backtest(args: argparse.Namespace) -> int:
+    """Walk-forward backtest of each site over past seasons; write forecasts, scores, page."""
+    from cyanorisk.evaluation import run_backtest, write_backtest
+
+    config = _config(args)
+    for weather, samples, table in _training(config):
+        site = weather.site
+        totals = samples.totals if samples else table.iloc[0:0]
+        result, span = run_backtest(config, site, table, totals, args.seasons, progress)
+        paths = write_backtest(config, site, result, totals, span)
+        print(f"{site.name} ({site.id}): backtest of seasons {span}")
+        overall = result.overall[result.overall["source"] == "model"]
+        for _, r in overall.iterrows():
+            clim = result.overall[(result.overall["source"] == "climatology")
+                                  & (result.overall["level"] == r["level"])].iloc[0]
+            print(f"  {r['level']}: ROC AUC {r['roc_auc']:.3f} [{r['roc_auc_low']:.3f}, "
+                  f"{r['roc_auc_high']:.3f}] (climatology {clim['roc_auc']:.3f}); Brier skill "
+                  f"vs climatology {r['brier_skill']:.3f} [{r['brier_skill_low']:.3f}, "
+                  f"{r['brier_skill_high']:.3f}]")
+        quiet = result.scores[(result.scores["source"] == "model") & (result.scores["events"] == 0)]
+        for _, r in quiet.iterrows():
+            print(f"  season {r['season']}: no exceedance of {r['level']}")
+        for note in result.notes:
+            print(f"  note: {note}")
+        for p in paths:
+            print(f"  wrote {p}")
+    return 0
+
+
+def cmd_tune(args: argparse.Namespace) -> int:
+    """Tune each level's warning threshold on a backtest; write the thresholds file."""
+    from cyanorisk.evaluation import run_backtest, run_tune, write_tuning
+
+    if (args.miss_cost is None) == (args.target_hit_rate is None):
+        raise ConfigError(args.config, None, "give either --miss-cost or --target-hit-rate")
+    config = _config(args)
+    for weather, samples, table in _training(config):
+        site = weather.site
+        totals = samples.totals if samples else table.iloc[0:0]
+        result, span = run_backtest(config, site, table, totals, args.seasons, progress)
+        choices, problems = run_tune(site, result, miss_cost=args.miss_cost,
+                                     target_hit_rate=args.target_hit_rate)
+        print(f"{site.name} ({site.id}): thresholds tuned on seasons {span}")
+        for c in choices:
+            print(f"  {c.level}: {c.rule}")
+            cols = ["threshold", "hits", "misses", "false_alarms", "correct_negatives", "hit_rate",
+                    "false_alarm_ratio", "mean_lead_time_days"]
+            rows = c.table[c.table["threshold"].isin([0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9,
+                                                      c.threshold])]
+            print("    " + rows[cols].to_string(index=False, float_format=lambda v: f"{v:.2f}")
+                  .replace("\n", "\n    "))
+            lo, hi = c.spread()
+            print(f"    chosen: warn at {c.threshold:.2f} (bootstrap over seasons: {lo:.2f} to {hi:.2f})")
+        for problem in problems:
+            print(f"  {problem}")
+        if choices:
+            for p in write_tuning(config, site, choices, span):
+                print(f"  wrote {p}")
+    return 0
+
+
 def cmd_check(args: argparse.Namespace) -> int:
     """Validate the configuration and every weather file's layout, without ingesting."""
     from cyanorisk.ingest.dialects import column_plan, sniff_layout
@@ -206,6 +268,15 @@ def build_parser() -> argparse.ArgumentParser:
     p = command("report", cmd_report, "write each site's daily risk report")
     p.add_argument("--as-of", metavar="DATE", help="local date to report for (default: the last "
                                                    "day of the weather record)")
+    p = command("backtest", cmd_backtest, "replay past seasons: how early and how reliably it "
+                                          "would have warned")
+    p.add_argument("--seasons", metavar="YYYY-YYYY", help="season start years, e.g. 2015-2022 "
+                                                         "(default: all but the first)")
+    p = command("tune", cmd_tune, "choose the probability that raises each level")
+    p.add_argument("--seasons", metavar="YYYY-YYYY", help="seasons to tune on (default: all but "
+                                                         "the first)")
+    p.add_argument("--miss-cost", type=float, help="cost of a missed exceedance in false alarms")
+    p.add_argument("--target-hit-rate", type=float, help="smallest acceptable hit rate, e.g. 0.9")
     command("check", cmd_check, "validate the configuration and the layout of every input file")
     return parser
 
@@ -217,7 +288,7 @@ def main(argv: list[str] | None = None) -> int:
     except ConfigError as exc:
         print(f"cyanorisk: {exc}", file=sys.stderr)
         return 2
-    except (IngestError, ModelFileError) as exc:
+    except (IngestError, ModelFileError, BacktestError) as exc:
         print(f"cyanorisk: {exc}", file=sys.stderr)
         return 1
     except OSError as exc:

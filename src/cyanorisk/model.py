@@ -2,10 +2,10 @@
 expected cell count at the horizon.
 
 - :class:`RiskModel`: an ordinal (proportional-odds) logistic model of the highest level reached
-  within the horizon, fitted by maximum likelihood (analytic gradient, L-BFGS; standard errors
-  from the Hessian). It agrees with statsmodels' ``OrderedModel`` (tested). One set of
-  driver coefficients and one cut point per level make the probabilities coherent by
-  construction: a higher level is never more likely than a lower one.
+  within the horizon, fitted by maximum likelihood (damped Newton's method on the analytic
+  gradient; standard errors from the Hessian); it agrees with statsmodels' ``OrderedModel``
+  (tested). One set of driver coefficients and one cut point per level make the probabilities
+  coherent by construction: a higher level is never more likely than a lower one.
 - :class:`CountModel`: ordinary least squares on log10 of the largest count in the window, with
   an 80% prediction interval.
 - :class:`ClimatologyModel` and :class:`PersistenceModel`: baselines with the same interface.
@@ -132,43 +132,77 @@ def _ordinal_nll(params: np.ndarray, Z: np.ndarray, y: np.ndarray,
     return nll, np.concatenate((g_beta, g_raw))
 
 
+def _fd_hessian(grad, x: np.ndarray) -> np.ndarray:
+    """Hessian by central differences of an analytic gradient (symmetrised)."""
+    h = 1e-5 * np.maximum(1.0, np.abs(x))
+    hess = np.empty((len(x), len(x)))
+    for i in range(len(x)):
+        e = np.zeros(len(x))
+        e[i] = h[i]
+        hess[i] = (grad(x + e) - grad(x - e)) / (2 * h[i])
+    return (hess + hess.T) / 2
+
+
+def _newton(fun, x: np.ndarray, tol: float, max_iter: int = 100) -> tuple[np.ndarray, bool]:
+    """Damped Newton's method on a smooth convex-near-the-optimum objective ``fun -> (f, g)``."""
+    f, g = fun(x)
+    for _ in range(max_iter):
+        if np.max(np.abs(g)) < tol:
+            return x, True
+        hess = _fd_hessian(lambda v: fun(v)[1], x)
+        try:
+            step = -np.linalg.solve(hess + 1e-10 * np.eye(len(x)), g)
+        except np.linalg.LinAlgError:
+            return x, False
+        if g @ step >= 0:  # not a descent direction: fall back to the gradient
+            step = -g / max(1.0, np.max(np.abs(g)))
+        t = 1.0
+        while t > 1e-10:
+            f_new, g_new = fun(x + t * step)
+            if np.isfinite(f_new) and f_new <= f + 1e-4 * t * (g @ step):
+                break
+            t /= 2
+        else:
+            return x, False
+        x, f, g = x + t * step, f_new, g_new
+    return x, np.max(np.abs(g)) < tol
+
+
 def _fit_ordinal(Z: np.ndarray, y: np.ndarray, n_cuts: int) -> _OrdinalFit:
-    """Fit by L-BFGS with the analytic gradient; the covariance of (beta, theta) from the
-    Hessian of the log-likelihood (central differences of the analytic gradient)."""
+    """Fit by damped Newton's method (analytic gradient, Hessian by differences of it), with
+    L-BFGS as a fallback; the covariance of (beta, theta) is the inverse Hessian of the
+    negative log-likelihood at the optimum."""
     p = Z.shape[1]
+
+    def fun(v: np.ndarray) -> tuple[float, np.ndarray]:
+        return _ordinal_nll(v, Z, y, n_cuts)
+
     start = np.concatenate((np.zeros(p), [-1.0], np.zeros(n_cuts - 1)))
-    res = optimize.minimize(_ordinal_nll, start, args=(Z, y, n_cuts), jac=True, method="L-BFGS-B",
-                            options={"maxiter": 10_000, "gtol": 1e-9, "ftol": 1e-15})
-    if not res.success and np.max(np.abs(res.jac)) > 1e-4:
-        raise RuntimeError(f"the ordinal model did not converge ({res.message}); the drivers may "
-                           "separate the outcomes perfectly, or be collinear")
-    beta, raw = res.x[:p], res.x[p:]
+    x, ok = _newton(fun, start, tol=1e-8)
+    if not ok:
+        res = optimize.minimize(fun, start, jac=True, method="L-BFGS-B",
+                                options={"maxiter": 10_000, "gtol": 1e-9, "ftol": 1e-15})
+        x, ok = res.x, res.success or np.max(np.abs(res.jac)) < 1e-4
+    if not ok:
+        raise RuntimeError("the ordinal model did not converge; the drivers may separate the "
+                           "outcomes perfectly, or be collinear")
+    beta, raw = x[:p], x[p:]
     theta = np.cumsum(np.concatenate(([raw[0]], np.exp(raw[1:]))))
-    # Hessian in (beta, theta): differentiate the gradient expressed in theta directly
     natural = np.concatenate((beta, theta))
 
     def grad_natural(v: np.ndarray) -> np.ndarray:
         th = v[p:]
         raw_v = np.concatenate(([th[0]], np.log(np.maximum(np.diff(th), 1e-300))))
         _, g = _ordinal_nll(np.concatenate((v[:p], raw_v)), Z, y, n_cuts)
-        g_theta = g[p:].copy()
-        # undo the chain rule: dL/dtheta_k = dL/draw_k / dtheta/draw ... solve the triangular map
+        # from d/d(raw) to d/d(theta): theta = J raw-map, solve the triangular chain rule
         jac = np.tril(np.ones((n_cuts, n_cuts))).T * np.concatenate(([1.0], np.diff(th)))[None, :].T
-        g_theta = np.linalg.solve(jac, g_theta)
-        return np.concatenate((g[:p], g_theta))
+        return np.concatenate((g[:p], np.linalg.solve(jac, g[p:])))
 
-    h = 1e-5 * np.maximum(1.0, np.abs(natural))
-    hess = np.empty((len(natural), len(natural)))
-    for i in range(len(natural)):
-        e = np.zeros(len(natural))
-        e[i] = h[i]
-        hess[i] = (grad_natural(natural + e) - grad_natural(natural - e)) / (2 * h[i])
-    hess = (hess + hess.T) / 2
     try:
-        cov = np.linalg.inv(hess)
+        cov = np.linalg.inv(_fd_hessian(grad_natural, natural))
     except np.linalg.LinAlgError:
-        cov = np.full_like(hess, np.nan)
-    return _OrdinalFit(beta, theta, cov, -float(res.fun))
+        cov = np.full((len(natural), len(natural)), np.nan)
+    return _OrdinalFit(beta, theta, cov, -float(fun(x)[0]))
 
 
 def _indicator_groups(X: pd.DataFrame) -> dict[str, list[str]]:

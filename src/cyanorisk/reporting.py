@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import tomllib
 from pathlib import Path
 from typing import Any
 
@@ -45,10 +46,32 @@ def load_models(config: Config, site: Site) -> Models:
 
 
 def thresholds_for(config: Config, site: Site) -> Thresholds:
-    """Warning thresholds of a site: tuned ones when a tuning file exists, else the default."""
+    """Warning thresholds of a site: the tuned ones when ``cyanorisk tune`` wrote a file for it
+    (levels it did not tune keep the default), else the default for every level.
+
+    Raises
+    ------
+    ModelFileError
+        When the thresholds file cannot be read or names levels the site's scheme lacks.
+    """
     names = site.alert_scheme().names
-    return Thresholds({n: DEFAULT_WARN_AT for n in names},
-                      f"default: {DEFAULT_WARN_AT:.0%} for every level (not tuned for this site)")
+    warn_at = {n: DEFAULT_WARN_AT for n in names}
+    path = config.models_dir / f"{site.id}.thresholds.toml"
+    if not path.exists():
+        return Thresholds(warn_at, f"default: {DEFAULT_WARN_AT:.0%} for every level "
+                                   "(not tuned for this site)")
+    try:
+        data = tomllib.loads(path.read_text(encoding="utf-8"))
+        tuned = {str(k): float(v) for k, v in data["warn_at"].items()}
+    except (OSError, tomllib.TOMLDecodeError, KeyError, TypeError, ValueError) as exc:
+        raise ModelFileError(f"{path}: not a readable thresholds file ({exc})") from None
+    unknown = set(tuned) - set(names)
+    if unknown or not all(0 < v < 1 for v in tuned.values()):
+        raise ModelFileError(f"{path}: levels {', '.join(sorted(unknown)) or '(none)'} are not in "
+                             f"the scheme ({', '.join(names)}), or a threshold is outside (0, 1)")
+    warn_at.update(tuned)
+    return Thresholds(warn_at, f"tuned on the backtest of seasons {data.get('seasons', '?')} "
+                               f"by {data.get('rule', '?')} ({path})")
 
 
 def quality_notes(weather: SiteWeather, samples: SiteSamples | None,

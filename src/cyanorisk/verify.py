@@ -81,3 +81,75 @@ def roc_curve(score: np.ndarray, o: np.ndarray) -> pd.DataFrame:
         warn = s >= t
         rows.append((t, float((warn & (o == 0)).sum() / n_neg), float((warn & (o == 1)).sum() / n_pos)))
     return pd.DataFrame(rows, columns=["threshold", "false_alarm_rate", "hit_rate"])
+
+
+def reliability_table(p: np.ndarray, o: np.ndarray, bins: int = 10) -> pd.DataFrame:
+    """Forecast probability binned against the observed frequency, with counts.
+
+    Bins are equal-width on [0, 1] (the last one closed). A bin without forecasts has NaN
+    means and a count of 0. Standard forecast verification (Wilks, Statistical Methods in the
+    Atmospheric Sciences, ch. 8, reliability diagram).
+    """
+    p, o = _clean(p, o)
+    edges = np.linspace(0.0, 1.0, bins + 1)
+    which = np.clip(np.digitize(p, edges[1:-1], right=False), 0, bins - 1)
+    rows = []
+    for b in range(bins):
+        sel = which == b
+        rows.append({"bin_low": edges[b], "bin_high": edges[b + 1], "n": int(sel.sum()),
+                     "mean_forecast": float(p[sel].mean()) if sel.any() else float("nan"),
+                     "observed_frequency": float(o[sel].mean()) if sel.any() else float("nan")})
+    return pd.DataFrame(rows)
+
+
+def contingency(p: np.ndarray, o: np.ndarray, threshold: float) -> dict[str, float]:
+    """Scores of warnings issued when ``p >= threshold``.
+
+    hits a, false alarms b, misses c, correct negatives d;
+    hit rate (probability of detection) POD = a/(a+c); false alarm ratio FAR = b/(a+b);
+    probability of false detection POFD = b/(b+d); critical success index CSI = a/(a+b+c).
+    A ratio whose denominator is zero is NaN. Standard 2x2 verification (Wilks, ch. 8).
+    """
+    p, o = _clean(p, o)
+    warn = p >= threshold
+    a = int((warn & (o == 1)).sum())
+    b = int((warn & (o == 0)).sum())
+    c = int((~warn & (o == 1)).sum())
+    d = int((~warn & (o == 0)).sum())
+
+    def ratio(num: int, den: int) -> float:
+        return num / den if den else float("nan")
+
+    return {"hits": a, "false_alarms": b, "misses": c, "correct_negatives": d,
+            "hit_rate": ratio(a, a + c), "false_alarm_ratio": ratio(b, a + b),
+            "pofd": ratio(b, b + d), "csi": ratio(a, a + b + c)}
+
+
+def lead_time_days(dates: np.ndarray, warned: np.ndarray, exceed_dates: np.ndarray,
+                   horizon_days: int = 7) -> float:
+    """Days from the first warning to the first observed exceedance in one season.
+
+    ``dates`` are the season's consecutive issue days, ``warned`` whether a warning at or above
+    the level was issued on each, ``exceed_dates`` the days of samples that met the level.
+
+    The first warning counted is the start of the warning spell (consecutive warning days) that
+    was running within ``horizon_days`` before the first exceedance, so that a false alarm months
+    earlier does not pass for a long lead time. Positive: the warning came first; zero: on the
+    day; negative: the first warning came that many days after the exceedance (late); NaN: no
+    exceedance this season, or no warning at all.
+    """
+    exceed = np.sort(np.asarray(exceed_dates, dtype="datetime64[D]"))
+    dates = np.asarray(dates, dtype="datetime64[D]")
+    warned = np.asarray(warned, dtype=bool)
+    if not len(exceed) or not warned.any():
+        return float("nan")
+    first = exceed[0]
+    day = np.timedelta64(1, "D")
+    before = warned & (dates <= first)
+    if before.any() and first - dates[before].max() <= horizon_days * day:
+        k = int(np.flatnonzero(before)[-1])
+        while k > 0 and warned[k - 1] and dates[k] - dates[k - 1] == day:
+            k -= 1
+        return float((first - dates[k]) / day)
+    after = warned & (dates > first)
+    return float(-((dates[after].min() - first) / day)) if after.any() else float("nan")

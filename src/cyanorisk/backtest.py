@@ -1,0 +1,226 @@
+"""Walk-forward backtests: how early and how reliably would the forecasts have warned?
+
+For each season in the requested range, the models are fitted on what was known before the
+season started (issue days whose outcome windows, and the lab delay after them, ended before
+the season's first day), then a forecast is issued for every issue day of the season exactly as
+the daily job would: the same causal drivers, the last count known at issue time, nothing from
+the future. The climatology and persistence baselines are issued beside it.
+
+Scores come per season and overall, with bootstrap intervals that resample whole seasons. A
+season without an exceedance is reported as such, and a score that cannot be computed is NaN
+with the reason, never dropped.
+"""
+
+from __future__ import annotations
+
+import warnings
+from collections.abc import Callable, Iterable, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from cyanorisk.config import Site
+from cyanorisk.levels import meets
+from cyanorisk.model import PersistenceModel, ordinal_outcome, prepare
+from cyanorisk.training import fit_models, label_columns, season_of
+from cyanorisk.verify import brier_score, contingency, lead_time_days, roc_auc
+
+MIN_HISTORY_DAYS = 300
+"""Labelled issue days a season's model needs to have learned from (about a season's worth):
+fewer invite perfect separation and wild coefficients."""
+SOURCES = ("model", "climatology", "persistence")
+COLUMN = {"model": "probability", "climatology": "climatology", "persistence": "persistence"}
+"""The forecasts column of each source."""
+
+
+@dataclass
+class BacktestResult:
+    """Everything a backtest produced. Probabilities in [0, 1]; dates are local issue dates."""
+
+    forecasts: pd.DataFrame
+    """One row per issue day and level: site_id, season, issue_date, level, horizon_days,
+    probability, outcome, climatology, persistence, warned (probability >= warn_at)."""
+    scores: pd.DataFrame
+    """Per season, level and source: n, events, brier, brier_skill (vs climatology), roc_auc,
+    contingency scores at the warning threshold, lead_time_days and a note."""
+    overall: pd.DataFrame
+    """Per level and source, pooled over seasons, with 90% bootstrap intervals by season."""
+    exceedances: pd.DataFrame
+    """Per season and level: the first sample that met the level (NaT if none)."""
+    notes: list[str]
+
+
+class BacktestError(ValueError):
+    """A backtest that cannot be run as asked (e.g. seasons outside the data)."""
+
+
+def parse_seasons(text: str | None, available: Sequence[int]) -> list[int]:
+    """'2015-2022' or '2018' -> season start years; None -> all but the first season (which
+    has nothing before it to learn from)."""
+    if not text:
+        return list(available)[1:]
+    try:
+        first, _, last = text.partition("-")
+        lo, hi = int(first), int(last or first)
+    except ValueError:
+        raise BacktestError(f"seasons {text!r}: expected a year or a range such as 2015-2022") from None
+    chosen = [s for s in available if lo <= s <= hi]
+    if not chosen:
+        raise BacktestError(f"seasons {text!r}: the data hold seasons {available[0]} to "
+                            f"{available[-1]}")
+    return chosen
+
+
+def walk_forward(site: Site, table: pd.DataFrame, totals: pd.DataFrame, seasons: Iterable[int],
+                 warn_at: dict[str, float],
+                 progress: Callable[[Iterable, int, str], Iterable] | None = None) -> BacktestResult:
+    """Run the walk-forward backtest of one site over ``seasons`` (season start years)."""
+    seasons = list(seasons)
+    scheme = site.alert_scheme()
+    names = scheme.names
+    h = site.model.horizon_days
+    delay = site.samples.lab_delay_days if site.samples else 3.0
+    X = prepare(table)
+    y = ordinal_outcome(X, label_columns(site))
+    issue_day = pd.to_datetime(X["issue_date"])
+    season = season_of(X["issue_date"], site.model.season_start_month)
+    parts, notes = [], []
+    loop = progress(seasons, len(seasons), "backtest") if progress else seasons
+    for s in loop:
+        start = pd.Timestamp(year=int(s), month=site.model.season_start_month, day=1)
+        in_season = season == s
+        known_before = (issue_day + pd.Timedelta(days=h + delay)) < start
+        part = pd.DataFrame({"site_id": site.id, "season": s,
+                             "issue_date": X.loc[in_season, "issue_date"].to_numpy()})
+        history = int((known_before.to_numpy() & ~np.isnan(y)).sum())
+        risk = clim = None
+        if history < MIN_HISTORY_DAYS:
+            notes.append(f"season {s}: no forecast, only {history} labelled issue days were known "
+                         f"before it (at least {MIN_HISTORY_DAYS} are needed)")
+        else:
+            try:
+                risk, _, clim = fit_models(site, table[known_before.to_numpy()])
+            except (ValueError, RuntimeError) as exc:
+                notes.append(f"season {s}: no forecast, the model could not be fitted on the data "
+                             f"known before it ({exc})")
+        p = risk.predict_proba(X[in_season]) if risk is not None else None
+        c = clim.predict_proba(X.loc[in_season, "issue_date"]) if clim is not None else None
+        per = PersistenceModel(names).predict_proba(X.loc[in_season, "last_level"])
+        for k, name in enumerate(names, start=1):
+            block = part.copy()
+            block["level"] = name
+            block["horizon_days"] = h
+            block["probability"] = p[name].to_numpy() if p is not None else np.nan
+            block["outcome"] = np.where(np.isnan(y[in_season]), np.nan, y[in_season] >= k)
+            block["climatology"] = c[name].to_numpy() if c is not None else np.nan
+            block["persistence"] = per[name].to_numpy()
+            block["warned"] = block["probability"] >= warn_at.get(name, 0.5)
+            parts.append(block)
+    forecasts = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame()
+    exceedances = first_exceedances(totals, site, seasons)
+    scores = season_scores(forecasts, exceedances, names, warn_at)
+    overall = overall_scores(forecasts, names)
+    return BacktestResult(forecasts, scores, overall, exceedances, notes)
+
+
+def first_exceedances(totals: pd.DataFrame, site: Site, seasons: Sequence[int]) -> pd.DataFrame:
+    """The first sample of each season that met each level (local date), NaT if none."""
+    scheme = site.alert_scheme()
+    rows = []
+    if len(totals):
+        local = totals["sampled_at"].dt.tz_convert(site.timezone).dt.tz_localize(None)
+        season = season_of(local, site.model.season_start_month)
+    for s in seasons:
+        for lvl in scheme.levels:
+            first = pd.NaT
+            if len(totals):
+                hit = (season == s) & (meets(totals, lvl) == 1.0)
+                if hit.any():
+                    first = local[hit].min().normalize()
+            rows.append({"season": s, "level": lvl.name, "first_exceedance": first})
+    return pd.DataFrame(rows)
+
+
+def _scores(block: pd.DataFrame, source: str, warn_at: float | None,
+            exceed: pd.Timestamp | None) -> dict:
+    p = block[COLUMN[source]].to_numpy(dtype=float)
+    o = block["outcome"].to_numpy(dtype=float)
+    labelled = ~np.isnan(o) & ~np.isnan(p)
+    n = int(labelled.sum())
+    events = int(np.nansum(o))  # observed whatever was forecast
+    out = {"n": n, "events": events, "brier": brier_score(p, o), "roc_auc": roc_auc(p, o)}
+    notes = []
+    if n == 0:
+        notes.append("no forecast issued with a sample in its window")
+    elif events == 0:
+        notes.append("no exceedance in this season: ROC AUC not defined")
+    elif events == n:
+        notes.append("every labelled day exceeded: ROC AUC not defined")
+    clim = block["climatology"].to_numpy(dtype=float)
+    ref = brier_score(clim[labelled], o[labelled]) if n else float("nan")
+    out["brier_skill"] = (1.0 - out["brier"] / ref) if ref and ref == ref and ref > 0 else float("nan")
+    if source != "climatology" and warn_at is not None:
+        out.update(contingency(p, o, warn_at))
+        warned = (p >= warn_at) & ~np.isnan(p)
+        exceed_dates = [] if exceed is None or pd.isna(exceed) else [exceed]
+        out["lead_time_days"] = lead_time_days(block["issue_date"].to_numpy(), warned, exceed_dates,
+                                               int(block["horizon_days"].iloc[0]))
+        if not exceed_dates:
+            notes.append("no sample met the level this season: no lead time")
+        elif not warned.any():
+            notes.append("the level was met but no warning was issued: missed")
+    out["note"] = "; ".join(notes)
+    return out
+
+
+def season_scores(forecasts: pd.DataFrame, exceedances: pd.DataFrame, names: list[str],
+                  warn_at: dict[str, float] | None = None) -> pd.DataFrame:
+    """Scores per season, level and source (see :class:`BacktestResult`)."""
+    rows = []
+    if forecasts.empty:
+        return pd.DataFrame()
+    for (s, level), block in forecasts.groupby(["season", "level"], sort=True):
+        ex = exceedances[(exceedances["season"] == s) & (exceedances["level"] == level)]
+        first = ex["first_exceedance"].iloc[0] if len(ex) else None
+        threshold = (warn_at or {}).get(level, 0.5)
+        for source in SOURCES:
+            rows.append({"season": s, "level": level, "source": source,
+                         **_scores(block, source, threshold, first)})
+    return pd.DataFrame(rows)
+
+
+def overall_scores(forecasts: pd.DataFrame, names: list[str], n_boot: int = 200,
+                   seed: int = 1) -> pd.DataFrame:
+    """Pooled scores per level and source with 90% bootstrap intervals (seasons resampled)."""
+    if forecasts.empty:
+        return pd.DataFrame()
+    rng = np.random.default_rng(seed)
+    rows = []
+    seasons = np.array(sorted(forecasts["season"].unique()))
+    for level in names:
+        f = forecasts[forecasts["level"] == level]
+        by_season = {s: f[f["season"] == s] for s in seasons}
+        for source in SOURCES:
+            def stats_of(frame: pd.DataFrame, source: str = source) -> tuple[float, float, float]:
+                p = frame[COLUMN[source]].to_numpy(dtype=float)
+                o = frame["outcome"].to_numpy(dtype=float)
+                c = frame["climatology"].to_numpy(dtype=float)
+                keep = ~np.isnan(p) & ~np.isnan(o) & ~np.isnan(c)
+                bs = brier_score(p[keep], o[keep])
+                ref = brier_score(c[keep], o[keep])
+                return bs, (1 - bs / ref) if ref > 0 else float("nan"), roc_auc(p[keep], o[keep])
+
+            point = stats_of(f)
+            boot = np.array([stats_of(pd.concat([by_season[s] for s in
+                                                 rng.choice(seasons, len(seasons))]))
+                             for _ in range(n_boot)]) if len(seasons) > 1 else np.full((1, 3), np.nan)
+            with warnings.catch_warnings():  # a score NaN in every resample stays NaN
+                warnings.simplefilter("ignore", RuntimeWarning)
+                lo, hi = np.nanpercentile(boot, 5, axis=0), np.nanpercentile(boot, 95, axis=0)
+            rows.append({"level": level, "source": source, "seasons": len(seasons),
+                         "brier": point[0], "brier_low": lo[0], "brier_high": hi[0],
+                         "brier_skill": point[1], "brier_skill_low": lo[1],
+                         "brier_skill_high": hi[1], "roc_auc": point[2], "roc_auc_low": lo[2],
+                         "roc_auc_high": hi[2]})
+    return pd.DataFrame(rows)

@@ -1,0 +1,149 @@
+"""Threshold tuning: which probability should raise each alert level, given what a missed
+exceedance costs against a false alarm.
+
+Works on a backtest's issued forecasts (:class:`cyanorisk.backtest.BacktestResult`): for each
+level the warning threshold is swept, and the hits, misses, false alarms and correct negatives,
+the hit rate, the false alarm ratio and the mean lead time are tabulated. A threshold is chosen
+by (a) the smallest expected cost, ``miss_cost`` x misses + false alarms (a false alarm costs 1),
+or (b) the highest threshold whose hit rate reaches a target (the fewest false alarms). How
+stable the choice is shows in the spread of the thresholds chosen on bootstrap resamples of
+whole seasons.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from cyanorisk.verify import lead_time_days
+
+THRESHOLDS = np.round(np.arange(0.01, 1.0, 0.01), 2)
+"""Probability thresholds swept: 0.01 to 0.99."""
+
+
+def sweep(forecasts: pd.DataFrame, exceedances: pd.DataFrame,
+          thresholds: np.ndarray = THRESHOLDS, lead_times: bool = True) -> pd.DataFrame:
+    """The trade-off table of one level: a row per threshold.
+
+    ``forecasts``: the backtest rows of one level (issue_date, season, probability, outcome,
+    horizon_days); ``exceedances``: its first exceedance per season. Contingency counts follow
+    :func:`cyanorisk.verify.contingency`, computed for all thresholds at once.
+    """
+    p = forecasts["probability"].to_numpy(dtype=float)
+    o = forecasts["outcome"].to_numpy(dtype=float)
+    keep = ~np.isnan(p) & ~np.isnan(o)
+    warn = p[keep, None] >= thresholds[None, :]
+    event = (o[keep] == 1)[:, None]
+    a = (warn & event).sum(axis=0)
+    b = (warn & ~event).sum(axis=0)
+    c = (~warn & event).sum(axis=0)
+    d = (~warn & ~event).sum(axis=0)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        table = pd.DataFrame({"threshold": thresholds, "hits": a, "false_alarms": b, "misses": c,
+                              "correct_negatives": d, "hit_rate": a / (a + c),
+                              "false_alarm_ratio": b / (a + b), "pofd": b / (b + d),
+                              "csi": a / (a + b + c)})
+    if lead_times:
+        table["mean_lead_time_days"] = [_mean_lead(forecasts, exceedances, t) for t in thresholds]
+    return table
+
+
+def _mean_lead(forecasts: pd.DataFrame, exceedances: pd.DataFrame, threshold: float) -> float:
+    first = dict(zip(exceedances["season"], exceedances["first_exceedance"], strict=True))
+    horizon = int(forecasts["horizon_days"].iloc[0]) if len(forecasts) else 7
+    leads = []
+    for s, g in forecasts.groupby("season", sort=True):
+        ex = first.get(s)
+        if ex is not None and not pd.isna(ex):
+            leads.append(lead_time_days(g["issue_date"].to_numpy(),
+                                        g["probability"].to_numpy() >= threshold, [ex], horizon))
+    leads = [x for x in leads if x == x]
+    return float(np.mean(leads)) if leads else float("nan")
+
+
+def choose_by_cost(table: pd.DataFrame, miss_cost: float) -> float:
+    """The threshold with the smallest ``miss_cost * misses + false_alarms`` (ties: the higher
+    threshold, which raises fewer alarms)."""
+    if miss_cost <= 0:
+        raise ValueError("miss_cost must be positive: it is the cost of a missed exceedance in "
+                         "units of one false alarm")
+    cost = miss_cost * table["misses"] + table["false_alarms"]
+    best = cost.min()
+    return float(table.loc[cost == best, "threshold"].max())
+
+
+def choose_by_hit_rate(table: pd.DataFrame, target: float) -> float:
+    """The highest threshold whose hit rate is at least ``target`` (the fewest false alarms).
+
+    Raises ValueError when no threshold reaches the target.
+    """
+    if not 0 < target <= 1:
+        raise ValueError("the target hit rate must be in (0, 1]")
+    ok = table[table["hit_rate"] >= target]
+    if ok.empty:
+        raise ValueError(f"no threshold reaches a hit rate of {target:.0%} in this backtest "
+                         f"(best: {table['hit_rate'].max():.0%})")
+    return float(ok["threshold"].max())
+
+
+@dataclass
+class Choice:
+    """A tuned threshold of one level and how stable it is."""
+
+    level: str
+    threshold: float
+    rule: str
+    table: pd.DataFrame
+    bootstrap: np.ndarray
+    """Thresholds chosen on bootstrap resamples of whole seasons."""
+
+    def spread(self) -> tuple[float, float]:
+        """5th and 95th percentiles of the bootstrap choices."""
+        b = self.bootstrap[~np.isnan(self.bootstrap)]
+        return (float(np.percentile(b, 5)), float(np.percentile(b, 95))) if len(b) else (np.nan,) * 2
+
+
+def tune_level(forecasts: pd.DataFrame, exceedances: pd.DataFrame, level: str, *,
+               miss_cost: float | None = None, target_hit_rate: float | None = None,
+               n_boot: int = 200, seed: int = 1) -> Choice:
+    """Tune one level's threshold by cost or by target hit rate, with its bootstrap spread."""
+    if (miss_cost is None) == (target_hit_rate is None):
+        raise ValueError("give either a miss cost or a target hit rate")
+    f = forecasts[(forecasts["level"] == level) & forecasts["probability"].notna()]
+    ex = exceedances[exceedances["level"] == level]
+
+    def pick(table: pd.DataFrame) -> float:
+        if miss_cost is not None:
+            return choose_by_cost(table, miss_cost)
+        return choose_by_hit_rate(table, target_hit_rate)
+
+    table = sweep(f, ex)
+    chosen = pick(table)
+    rng = np.random.default_rng(seed)
+    seasons = np.array(sorted(f["season"].unique()))
+    boot = []
+    by_season = {s: f[f["season"] == s] for s in seasons}
+    for _ in range(n_boot if len(seasons) > 1 else 0):
+        fb = pd.concat([by_season[s] for s in rng.choice(seasons, len(seasons))])
+        try:  # the choice rules use counts only, so the resamples need no lead times
+            boot.append(pick(sweep(fb, ex, THRESHOLDS, lead_times=False)))
+        except ValueError:
+            boot.append(np.nan)
+    rule = (f"miss cost {miss_cost:g} (a missed exceedance costs {miss_cost:g} false alarms)"
+            if miss_cost is not None else f"target hit rate {target_hit_rate:.0%}")
+    return Choice(level, chosen, rule, table, np.array(boot, dtype=float))
+
+
+def thresholds_toml(site_id: str, choices: list[Choice], seasons: str) -> str:
+    """The tuned thresholds as a TOML file the daily report reads."""
+    lines = [f"# Warning thresholds for site '{site_id}', written by `cyanorisk tune`.",
+             "# The daily report of this site applies them and names this file.",
+             f'site_id = "{site_id}"',
+             f'rule = "{choices[0].rule}"' if choices else 'rule = ""',
+             f'seasons = "{seasons}"', "", "[warn_at]"]
+    for c in choices:
+        lo, hi = c.spread()
+        lines.append(f'"{c.level}" = {c.threshold:.2f}    # bootstrap 90% range {lo:.2f} to {hi:.2f}')
+    return "\n".join(lines) + "\n"
