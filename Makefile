@@ -25,6 +25,7 @@ lint: $(STAMP)
 bench: $(STAMP)
 	$(BIN)/python benchmarks/bench_ingest.py
 	$(BIN)/python benchmarks/bench_features.py
+	$(BIN)/python benchmarks/bench_backtest.py
 
 clean:
 	rm -rf $(VENV) build src/*.egg-info .pytest_cache .ruff_cache

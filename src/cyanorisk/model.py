@@ -337,15 +337,22 @@ class RiskModel:
 
     def explain(self, X: pd.DataFrame, top: int = 5) -> list[list[dict[str, Any]]]:
         """For each row, the drivers that push the forecast most: contribution to the log-odds
-        relative to an average training day (coefficient x standardised value), largest first."""
+        relative to an average training day (coefficient x standardised value), largest first.
+
+        ``value`` is the value the model used: for a missing driver, the training median it was
+        replaced by (and ``imputed`` is true); for a missingness indicator, 0 or 1.
+        """
         Z = self._standardised(X)
+        used = self._impute(X, self.scaling_.median, self.scaling_.indicators)
+        missing = X[list(self.drivers)].isna()
         contrib = Z.to_numpy() * self.coef_
         out = []
         for r in range(len(Z)):
             order = np.argsort(-np.abs(contrib[r]))[:top]
             out.append([{"driver": self.feature_names_in_[j],
-                         "value": float(X.iloc[r][self.feature_names_in_[j]])
-                         if self.feature_names_in_[j] in X else float("nan"),
+                         "value": float(used.iloc[r][self.feature_names_in_[j]]),
+                         "imputed": bool(self.feature_names_in_[j] in missing
+                                         and missing.iloc[r][self.feature_names_in_[j]]),
                          "log_odds": float(contrib[r, j]),
                          "direction": "raises" if contrib[r, j] > 0 else "lowers"}
                         for j in order])

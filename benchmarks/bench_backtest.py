@@ -1,0 +1,75 @@
+"""Backtest benchmark: a 20-season daily walk-forward for one site, beside a bare parse.
+
+Generates 20 years of the demo reservoir's data (weather and lab sheets), ingests them and builds
+the training table once, then times in one run: (a) ``pandas.read_csv`` of the site's weather
+files, (b) the walk-forward backtest over the last 5, 10 and 20 seasons (fit on everything known
+before each season, a forecast for every issue day, scores with bootstrap intervals). Targets:
+20 seasons under 10 s on this machine class, cost growing about linearly with the seasons. The
+last line is machine-readable.
+
+Usage: python benchmarks/bench_backtest.py [--repeat 2]
+"""
+
+from __future__ import annotations
+
+import argparse
+import re
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import pandas as pd
+
+from cyanorisk.backtest import walk_forward
+from cyanorisk.config import embedded_demo_text, load_config
+from cyanorisk.demo import write_demo
+from cyanorisk.ingest.sites import ingest_site_samples, ingest_site_weather
+from cyanorisk.training import season_of, site_training_table
+
+
+def best_of(fn, repeat: int) -> float:
+    best = float("inf")
+    for _ in range(repeat):
+        t0 = time.perf_counter()
+        fn()
+        best = min(best, time.perf_counter() - t0)
+    return best
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--repeat", type=int, default=2)
+    args = parser.parse_args()
+    with tempfile.TemporaryDirectory() as tmp:
+        root = Path(tmp)
+        config_path = root / "bench.toml"
+        config_path.write_text(re.sub(r'(?m)^root = "\.\."', 'root = "."', embedded_demo_text()),
+                               encoding="utf-8")
+        files = write_demo(root / "demo_data", 20, 20261202)
+        config = load_config(config_path)
+        site = config.sites[0]
+        weather = ingest_site_weather(config, site)
+        samples = ingest_site_samples(config, site, weather.meta)
+        table = site_training_table(site, weather.data, samples.totals)
+        seasons = sorted(set(season_of(table["issue_date"], site.model.season_start_month).tolist()))
+        seasons = seasons[1:][-20:]
+        warn_at = {n: 0.5 for n in site.alert_scheme().names}
+        parse_s = best_of(lambda: [pd.read_csv(p, sep="\t", skiprows=1) for p in files.weather],
+                          args.repeat + 2)
+        timings = {}
+        for n in (5, 10, 20):
+            chosen = seasons[-n:]
+            timings[n] = best_of(lambda c=chosen: walk_forward(site, table, samples.totals, c,
+                                                                warn_at), args.repeat)
+    print(f"{len(table):,} issue days, seasons {seasons[0]}-{seasons[-1]}")
+    print(f"(a) pandas.read_csv of the weather files   {parse_s * 1000:8.1f} ms")
+    for n, s in timings.items():
+        print(f"(b) walk-forward over {n:2d} seasons          {s:8.2f} s")
+    print("targets: seconds_20 < 10, growth_20_vs_5 about 4 (linear)")
+    print(f"bench_backtest: seconds_20={timings[20]:.1f} backtest_vs_parse={timings[20] / parse_s:.0f} "
+          f"growth_20_vs_5={timings[20] / timings[5]:.1f}")
+
+
+if __name__ == "__main__":
+    sys.exit(main())
