@@ -18,6 +18,8 @@ from cyanorisk.backtest import BacktestError
 from cyanorisk.config import Config, ConfigError, load_config
 from cyanorisk.ingest.quality import IngestError
 from cyanorisk.model import ModelFileError
+from cyanorisk.service.jobs import RunLockedError
+from cyanorisk.service.store import StoreError
 
 T = TypeVar("T")
 
@@ -191,6 +193,58 @@ def cmd_tune(args: argparse.Namespace) -> int:
     return 0
 
 
+def cmd_serve(args: argparse.Namespace) -> int:
+    """Run the daily jobs on schedule in the foreground until SIGTERM or Ctrl-C."""
+    import logging
+    import signal
+
+    from apscheduler.schedulers.blocking import BlockingScheduler
+
+    from cyanorisk.service.scheduler import _now, add_jobs, add_listeners, catch_up
+
+    logging.basicConfig(level=logging.INFO, format="%(asctime)s %(name)s %(message)s")
+    config = _config(args)
+    path = str(args.config) if args.config else None
+    if config.service.catch_up and not args.no_catch_up and not args.every:
+        catch_up(path, _now())
+    scheduler = BlockingScheduler()
+    add_listeners(scheduler, config)
+    add_jobs(scheduler, config, path, args.every, args.as_of)
+    for job in scheduler.get_jobs():
+        logging.getLogger("cyanorisk.service").info("scheduled %s: %s", job.id, job.trigger)
+
+    def stop(signum, frame):
+        logging.getLogger("cyanorisk.service").info("stopping (signal %s)", signum)
+        scheduler.shutdown(wait=False)
+
+    signal.signal(signal.SIGTERM, stop)
+    signal.signal(signal.SIGINT, stop)
+    scheduler.start()
+    return 0
+
+
+def cmd_status(args: argparse.Namespace) -> int:
+    """Per site: last run, its status, last level, data freshness."""
+    from cyanorisk.service.scheduler import status_lines
+
+    for line in status_lines(_config(args)):
+        print(line)
+    return 0
+
+
+def cmd_run(args: argparse.Namespace) -> int:
+    """Run the daily job once for a date (as the scheduler would), recording it in the store."""
+    from cyanorisk.service.jobs import run_daily, utc_clock
+
+    result = run_daily(args.as_of, _config(args), clock=utc_clock)
+    for o in result.sites:
+        print(f"{result.as_of} {o.site_id}: {o.action} (revision {o.revision}, "
+              f"{o.level or o.status}); {o.reason}")
+        if o.notification:
+            print(f"  notification: {o.notification}")
+    return 0 if result.status == "ok" else 1
+
+
 def cmd_check(args: argparse.Namespace) -> int:
     """Validate the configuration and every weather file's layout, without ingesting."""
     from cyanorisk.ingest.dialects import column_plan, sniff_layout
@@ -277,6 +331,15 @@ def build_parser() -> argparse.ArgumentParser:
                                                          "the first)")
     p.add_argument("--miss-cost", type=float, help="cost of a missed exceedance in false alarms")
     p.add_argument("--target-hit-rate", type=float, help="smallest acceptable hit rate, e.g. 0.9")
+    p = command("serve", cmd_serve, "run the daily reports on schedule until stopped")
+    p.add_argument("--no-catch-up", action="store_true", help="do not run the days missed while "
+                                                              "the service was down")
+    p.add_argument("--every", type=float, metavar="SECONDS", help="for trials: run every SECONDS "
+                                                                  "instead of daily")
+    p.add_argument("--as-of", metavar="DATE", help="for trials with --every: the date to assess")
+    command("status", cmd_status, "show each site's last run, level and data freshness")
+    p = command("run", cmd_run, "run the daily job once for a date and record it")
+    p.add_argument("--as-of", metavar="DATE", required=True, help="local date to assess")
     command("check", cmd_check, "validate the configuration and the layout of every input file")
     return parser
 
@@ -288,7 +351,7 @@ def main(argv: list[str] | None = None) -> int:
     except ConfigError as exc:
         print(f"cyanorisk: {exc}", file=sys.stderr)
         return 2
-    except (IngestError, ModelFileError, BacktestError) as exc:
+    except (IngestError, ModelFileError, BacktestError, RunLockedError, StoreError) as exc:
         print(f"cyanorisk: {exc}", file=sys.stderr)
         return 1
     except OSError as exc:

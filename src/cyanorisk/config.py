@@ -140,6 +140,27 @@ class Site:
 
 
 @dataclass(frozen=True)
+class ServiceSettings:
+    """The scheduled service: its store, notifications and catch-up."""
+
+    store_url: str | None = None
+    """SQLAlchemy URL of the store; default: SQLite file ``cyanorisk.db`` in the data folder.
+    A PostgreSQL URL (``postgresql://user@host/db``) works too."""
+    outbox_dir: str | None = None
+    """Where level-rise notifications are written; default: ``outbox`` in the data folder."""
+    smtp_host: str | None = None
+    """When set, notifications are also sent by e-mail through this SMTP server."""
+    smtp_port: int = 25
+    mail_from: str = "cyanorisk@localhost"
+    mail_to: tuple[str, ...] = ()
+    catch_up: bool = True
+    """On start, run the days missed since the last recorded run."""
+    misfire_grace_hours: float = 6.0
+    """How late a scheduled run may still start (APScheduler's default of 1 s would skip it)."""
+    max_catch_up_days: int = 14
+
+
+@dataclass(frozen=True)
 class DemoSettings:
     """What ``cyanorisk demo`` generates."""
 
@@ -161,10 +182,19 @@ class Config:
     ingest: IngestSettings
     dialects: dict[str, WeatherDialect]
     sites: tuple[Site, ...]
-    layouts: dict[str, SampleLayout] = field(default_factory=dict)
-    taxa: dict[str, Taxon] = field(default_factory=dict)
     demo: DemoSettings | None = None
     raw: dict[str, Any] = field(default_factory=dict, repr=False)
+    layouts: dict[str, SampleLayout] = field(default_factory=dict)
+    taxa: dict[str, Taxon] = field(default_factory=dict)
+    service: ServiceSettings = field(default_factory=ServiceSettings)
+
+    @property
+    def store_url(self) -> str:
+        return self.service.store_url or f"sqlite:///{self.data_dir / 'cyanorisk.db'}"
+
+    @property
+    def outbox(self) -> Path:
+        return self.root / self.service.outbox_dir if self.service.outbox_dir else self.data_dir / "outbox"
 
     def site(self, site_id: str) -> Site:
         for s in self.sites:
@@ -208,7 +238,7 @@ def load_config(path: str | Path | None = None, *, check_files: bool = True) -> 
 
 
 _TOP = {"root", "data_dir", "reports_dir", "models_dir", "ingest", "dialects", "sample_layouts",
-        "taxa", "schemes", "sites", "demo"}
+        "taxa", "schemes", "sites", "demo", "service"}
 _DIALECT = {"separator", "decimal", "encoding", "skip_lines", "date_column", "time_column",
             "timestamp_column", "date_order", "stamp_zone", "stamp_marks", "missing", "columns",
             "other_columns", "coerce_year"}
@@ -293,7 +323,8 @@ class _Reader:
             reports_dir=self.path(self.get(raw, "reports_dir", str, "", "reports")),
             models_dir=self.path(self.get(raw, "models_dir", str, "", "models")),
             ingest=ingest, dialects=dialects, sites=sites, demo=demo, raw=raw,
-            layouts=layouts, taxa=taxa)
+            layouts=layouts, taxa=taxa,
+            service=self.record(self.get(raw, "service", dict, "", {}), ServiceSettings, "service"))
 
     def custom(self, table: Any, name: str) -> Scheme:
         """A custom alert-level scheme: title, use, source, year and ordered levels."""

@@ -127,6 +127,17 @@ class FeatureSettings:
     min_good_share: float = 0.8
     """A window with a smaller share of good values gives NaN."""
 
+    def __post_init__(self) -> None:
+        parts = self.issue_time.split(":")
+        if len(parts) != 2 or not all(p.isdigit() for p in parts) or int(parts[0]) > 23 \
+                or int(parts[1]) > 59:
+            raise ValueError(f"issue_time must be HH:MM, not {self.issue_time!r}")
+        if int(parts[0]) == 2:
+            raise ValueError("issue_time must be outside 02:00-03:00, where daylight-saving "
+                             "changes skip or repeat the hour")
+        if not 0 < self.min_good_share <= 1:
+            raise ValueError("min_good_share must be in (0, 1]")
+
 
 class _Windowed:
     """Cumulative sums that answer window questions for a set of issue instants.

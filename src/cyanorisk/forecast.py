@@ -207,3 +207,41 @@ def known_counts(totals: pd.DataFrame, issue: pd.Timestamp, first_day: pd.Timest
     known = known_from(totals, lab_delay_days, tz) <= issue
     recent = totals["sampled_at"].dt.tz_convert(tz).dt.tz_localize(None) >= first_day
     return totals.loc[known & recent, columns].reset_index(drop=True)
+
+
+def no_assessment(site: Site, as_of: pd.Timestamp, reason: str) -> Assessment:
+    """The report of a day on which the site could not be assessed (a corrupt file, a missing
+    model): it says so and why, rather than saying nothing or showing a level."""
+    scheme = site.alert_scheme()
+    names = scheme.names
+    day = pd.Timestamp(as_of).normalize().tz_localize(None)
+    issue = issue_instants(pd.DatetimeIndex([day]), site.timezone, site.drivers.issue_time)[0]
+    content: dict[str, Any] = {
+        "schema": "cyanorisk-report/1",
+        "site": {"id": site.id, "name": site.name, "use": site.use, "timezone": site.timezone},
+        "as_of": str(day.date()), "issue_time_utc": issue.isoformat(),
+        "issue_time_local": _local(issue, site.timezone),
+        "status": STATUS_NONE, "status_reasons": [reason],
+        "headline": f"No assessment today: {reason}",
+        "scheme": {"key": scheme.key, "title": scheme.title, "source": scheme.source,
+                   "year": scheme.year, "levels": names,
+                   "thresholds": [[{"measure": t.measure, "value": t.value, "inclusive": t.inclusive,
+                                    "status": t.status} for t in lvl.thresholds]
+                                  for lvl in scheme.levels]},
+        "forecast": {"level_rank": None, "level": None, "horizon_days": site.model.horizon_days,
+                     "probabilities": {}, "warn_at": {}, "thresholds_source": "not applied",
+                     "climatology": {}, "persistence": {}, "expected_cells_per_ml": None,
+                     "interval_80_cells_per_ml": None, "drivers": [], "missing_drivers": []},
+        "observed": {"last_sampled_at": None, "known_since": None, "cyano_cells_per_ml": None,
+                     "censor": None, "level": None, "age_days": None},
+        "freshness": {"last_weather_utc": None, "last_weather_local": None,
+                      "weather_age_days": None,
+                      "lab_delay_days": site.samples.lab_delay_days if site.samples else 3.0},
+        "quality": {"notes": [reason]},
+        "cautions": list(cautions(0, site.use)) + ["Without today's assessment, rely on the "
+                                                   "latest lab results and on what is seen on site."],
+        "deferral": DEFERRAL.format(authority=site.authority),
+        "model": {"cyanorisk_version": cyanorisk.__version__, "trained_with": None,
+                  "training_window": None, "fingerprint": None},
+    }
+    return Assessment(content)

@@ -74,48 +74,56 @@ def thresholds_for(config: Config, site: Site) -> Thresholds:
                                f"by {data.get('rule', '?')} ({path})")
 
 
-def quality_notes(weather: SiteWeather, samples: SiteSamples | None,
-                  issue: pd.Timestamp) -> dict[str, Any]:
-    """Data-quality notes for the report: fills and gaps of the last 7 days, rejects."""
+def quality_notes(weather: pd.DataFrame, weather_rows: dict[str, int],
+                  sample_rows: dict[str, int] | None, issue: pd.Timestamp) -> dict[str, Any]:
+    """Data-quality notes for the report: fills and gaps of the last 7 days, rejected rows."""
     notes = []
-    recent = weather.data[(weather.data.index < issue)
-                          & (weather.data.index >= issue - pd.Timedelta(days=7))]
+    recent = weather[(weather.index < issue) & (weather.index >= issue - pd.Timedelta(days=7))]
     for col in [c for c in recent.columns if c.endswith("_flag")]:
         flags = recent[col].astype(str)
         filled, missing = int((flags == "filled").sum()), int((flags == "missing").sum())
         if filled or missing:
             notes.append(f"{col[:-5]}: {filled} value(s) filled and {missing} missing in the "
                          "last 7 days")
-    a = weather.meta.account
-    if a.rejected:
-        notes.append(f"weather ingest rejected {a.rejected} row(s) of {a.read:,}; see the rejects "
-                     "ledger")
-    if samples is not None and samples.meta.account.rejected:
-        notes.append(f"lab ingest rejected {samples.meta.account.rejected} row(s); see the "
-                     "rejects ledger")
+    if weather_rows.get("rejected"):
+        notes.append(f"weather ingest rejected {weather_rows['rejected']} row(s) of "
+                     f"{weather_rows['read']:,}; see the rejects ledger")
+    if sample_rows and sample_rows.get("rejected"):
+        notes.append(f"lab ingest rejected {sample_rows['rejected']} row(s); see the rejects ledger")
     if not notes:
         notes.append("no fills, gaps or rejected rows in the data behind this report")
-    return {"notes": notes, "weather_rows": a.as_dict(),
-            "sample_rows": samples.meta.account.as_dict() if samples else None}
+    return {"notes": notes, "weather_rows": weather_rows, "sample_rows": sample_rows}
 
 
-def default_as_of(weather: SiteWeather) -> pd.Timestamp:
+def default_as_of(weather: pd.DataFrame, timezone: str) -> pd.Timestamp:
     """The last local day whose issue time the weather record reaches."""
-    last = weather.data.index[-1] if len(weather.data) else pd.Timestamp.now(tz="UTC")
-    return last.tz_convert(weather.site.timezone).tz_localize(None).normalize()
+    if weather.empty:
+        raise ValueError("no weather data: give the date to report for")
+    return weather.index[-1].tz_convert(timezone).tz_localize(None).normalize()
+
+
+EMPTY_TOTALS = ["site_id", "sample_id", "sampled_at", "reported_at", "cyano_cells_per_ml",
+                "cyano_censor"]
+
+
+def assess_site(config: Config, site: Site, weather: pd.DataFrame, totals: pd.DataFrame | None,
+                rows: dict[str, dict | None], as_of: pd.Timestamp | None) -> Assessment:
+    """The day's assessment of a site from its clean data and its saved models."""
+    models = load_models(config, site)
+    day = as_of if as_of is not None else default_as_of(weather, site.timezone)
+    issue = issue_instants(pd.DatetimeIndex([day]), site.timezone, site.drivers.issue_time)[0]
+    totals = totals if totals is not None else pd.DataFrame(columns=EMPTY_TOTALS)
+    return assess(site, models, weather, totals, day, thresholds_for(config, site),
+                  quality_notes(weather, rows["weather"] or {}, rows.get("samples"), issue))
 
 
 def site_report(config: Config, weather: SiteWeather, samples: SiteSamples | None,
                 as_of: pd.Timestamp | None) -> Assessment:
-    site = weather.site
-    models = load_models(config, site)
-    day = as_of if as_of is not None else default_as_of(weather)
-    issue = issue_instants(pd.DatetimeIndex([day]), site.timezone, site.drivers.issue_time)[0]
-    totals = samples.totals if samples is not None else pd.DataFrame(
-        columns=["site_id", "sample_id", "sampled_at", "reported_at", "cyano_cells_per_ml",
-                 "cyano_censor"])
-    return assess(site, models, weather.data, totals, day, thresholds_for(config, site),
-                  quality_notes(weather, samples, issue))
+    """:func:`assess_site` on fresh ingest results."""
+    rows = {"weather": weather.meta.account.as_dict(),
+            "samples": samples.meta.account.as_dict() if samples else None}
+    return assess_site(config, weather.site, weather.data,
+                       samples.totals if samples is not None else None, rows, as_of)
 
 
 def write_report(config: Config, assessment: Assessment) -> list[Path]:

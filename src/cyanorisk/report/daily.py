@@ -14,7 +14,7 @@ from typing import Any
 
 import matplotlib.pyplot as plt
 
-from cyanorisk.forecast import STATUS_ASSESSED, Assessment
+from cyanorisk.forecast import STATUS_ASSESSED, STATUS_NONE, Assessment
 from cyanorisk.report.labels import driver_label
 from cyanorisk.report.plots import counts_plot, drivers_plot, probability_plot
 
@@ -74,9 +74,26 @@ def figures(a: Assessment) -> dict[str, str]:
     return out
 
 
+def _render_no_assessment(c: dict[str, Any]) -> str:
+    e = html.escape
+    cautions = "".join(f"<li>{e(x)}</li>" for x in c["cautions"])
+    return f"""<!DOCTYPE html>
+<html lang="en"><head><meta charset="utf-8">
+<title>{e(c['site']['name'])}: no assessment {e(c['as_of'])}</title><style>{CSS}</style></head>
+<body><h1>{e(c['site']['name'])}: cyanobacterial bloom risk</h1>
+<p class="sub">For {e(c['as_of'])} at {e(c['issue_time_local'])}.</p>
+<section id="headline"><div class="headline insufficient">{e(c['headline'])}</div></section>
+<section id="cautions"><h2>Health cautions</h2><ul>{cautions}</ul></section>
+<section id="deferral"><p class="deferral">{e(c['deferral'])}</p></section>
+</body></html>
+"""
+
+
 def render_html(a: Assessment) -> str:
     """The self-contained HTML page."""
     c = a.content
+    if c["status"] == STATUS_NONE:
+        return _render_no_assessment(c)
     e = html.escape
     f, o, fr = c["forecast"], c["observed"], c["freshness"]
     assessed = c["status"] == STATUS_ASSESSED
@@ -160,6 +177,9 @@ def render_text(a: Assessment) -> str:
     f, o = c["forecast"], c["observed"]
     lines = [f"{c['site']['name']} - bloom risk for {c['as_of']} (issued {c['issue_time_local']})",
              "", c["headline"], ""]
+    if c["status"] == STATUS_NONE:
+        return "\n".join(lines + ["Cautions:"] + [f"- {x}" for x in c["cautions"]]
+                          + ["", c["deferral"]]) + "\n"
     if o["last_sampled_at"]:
         lines.append(f"Last sample: {o['last_sampled_at']}, "
                      f"{_fmt_cells(o['cyano_cells_per_ml'], o['censor'])} ({o['level']}), "

@@ -1,0 +1,1 @@
+"""The scheduled service: the daily job, its scheduler and the embedded store."""

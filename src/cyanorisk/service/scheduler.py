@@ -1,0 +1,180 @@
+"""The scheduler (APScheduler 3.x): each site's daily job at its issue time, in its time zone.
+
+Each site gets one job with a stable id (``replace_existing=True``), a ``CronTrigger`` at the
+site's issue time in its zone (kept out of 02:00-03:00, where daylight-saving changes happen),
+``coalesce=True`` (a backlog of missed runs is run once), ``max_instances=1`` and a misfire grace
+time of hours (APScheduler's default of 1 s would silently skip a late run). Listeners record
+errors and missed runs in the store. On start the days missed since the last recorded report
+are caught up, each once (the daily job is idempotent).
+
+The system clock is read here, at the service's edge, and nowhere below it.
+"""
+
+from __future__ import annotations
+
+import logging
+from collections.abc import Callable
+from datetime import datetime, timedelta
+from pathlib import Path
+from zoneinfo import ZoneInfo
+
+import pandas as pd
+from apscheduler.events import EVENT_JOB_ERROR, EVENT_JOB_EXECUTED, EVENT_JOB_MISSED, JobExecutionEvent
+from apscheduler.schedulers.base import BaseScheduler
+from apscheduler.triggers.cron import CronTrigger
+from apscheduler.triggers.interval import IntervalTrigger
+
+from cyanorisk.config import Config, Site, load_config
+from cyanorisk.service.jobs import RunResult, run_daily, utc_clock
+from cyanorisk.service.store import Store
+
+log = logging.getLogger("cyanorisk.service")
+
+JOB_PREFIX = "cyanorisk-daily:"
+
+
+def issue_trigger(site: Site) -> CronTrigger:
+    """Every day at the site's issue time, in its zone."""
+    hour, minute = (int(x) for x in site.drivers.issue_time.split(":")[:2])
+    return CronTrigger(hour=hour, minute=minute, timezone=ZoneInfo(site.timezone))
+
+
+def local_today(site: Site, now: datetime) -> str:
+    """The site's local date at ``now``."""
+    return now.astimezone(ZoneInfo(site.timezone)).date().isoformat()
+
+
+def daily_job(config_path: str | None, site_id: str, as_of: str | None = None,
+              now: Callable[[], datetime] | None = None) -> RunResult:
+    """One scheduled run: reload the configuration (new files are picked up), assess one site for
+    its local date, log one line."""
+    config = load_config(config_path)
+    config = _only(config, site_id)
+    site = config.sites[0]
+    day = as_of or local_today(site, (now or _now)())
+    result = run_daily(day, config, clock=utc_clock)
+    for o in result.sites:
+        log.info("%s %s: %s (revision %s, %s)%s", day, o.site_id, o.action, o.revision,
+                 o.level or o.status, f"; {o.reason}" if o.action != "unchanged" else "")
+    return result
+
+
+def _now() -> datetime:
+    return datetime.now(tz=ZoneInfo("UTC"))
+
+
+def _only(config: Config, site_id: str) -> Config:
+    from dataclasses import replace
+
+    return replace(config, sites=tuple(s for s in config.sites if s.id == site_id))
+
+
+def missed_days(config: Config, site: Site, now: datetime, store: Store) -> list[str]:
+    """Local dates whose issue time has passed since the site's last recorded report, oldest
+    first, at most ``max_catch_up_days``; none when nothing was ever recorded (a new service
+    starts with today's run, not with history)."""
+    last = store.latest_report(site.id)
+    if last is None:
+        return []
+    tz = ZoneInfo(site.timezone)
+    hour, minute = (int(x) for x in site.drivers.issue_time.split(":")[:2])
+    local_now = now.astimezone(tz)
+    day = pd.Timestamp(last.as_of).date() + timedelta(days=1)
+    days = []
+    while day <= local_now.date():
+        issue = datetime(day.year, day.month, day.day, hour, minute, tzinfo=tz)
+        if issue <= local_now:
+            days.append(day.isoformat())
+        day += timedelta(days=1)
+    return days[-config.service.max_catch_up_days:]
+
+
+def catch_up(config_path: str | None, now: datetime) -> list[RunResult]:
+    """Run, once each, the days missed while the service was down."""
+    config = load_config(config_path)
+    store = Store(config.store_url)
+    try:
+        plan = [(site.id, day) for site in config.sites for day in missed_days(config, site, now, store)]
+    finally:
+        store.close()
+    results = []
+    for site_id, day in plan:
+        log.info("catching up %s for %s", day, site_id)
+        results.append(daily_job(config_path, site_id, as_of=day))
+    return results
+
+
+def add_jobs(scheduler: BaseScheduler, config: Config, config_path: str | None,
+             every_seconds: float | None = None, as_of: str | None = None) -> list[str]:
+    """Add (or replace) one daily job per site. ``every_seconds`` replaces the daily trigger
+    by an interval, for trials."""
+    ids = []
+    grace = int(config.service.misfire_grace_hours * 3600)
+    for site in config.sites:
+        trigger = (IntervalTrigger(seconds=every_seconds) if every_seconds else issue_trigger(site))
+        job = scheduler.add_job(daily_job, trigger, args=[config_path, site.id, as_of],
+                                id=JOB_PREFIX + site.id, name=f"daily report: {site.name}",
+                                replace_existing=True, coalesce=True, max_instances=1,
+                                misfire_grace_time=grace)
+        ids.append(job.id)
+    return ids
+
+
+def add_listeners(scheduler: BaseScheduler, config: Config) -> None:
+    """Record errors and missed runs in the store, and log every run."""
+    def listen(event: JobExecutionEvent) -> None:
+        site_id = event.job_id.removeprefix(JOB_PREFIX)
+        if event.code == EVENT_JOB_EXECUTED:
+            return
+        when = utc_clock()
+        what = "missed" if event.code == EVENT_JOB_MISSED else "error"
+        detail = (f"scheduled for {event.scheduled_run_time}" if event.code == EVENT_JOB_MISSED
+                  else f"{type(event.exception).__name__}: {event.exception}")
+        log.error("%s %s: %s", site_id, what, detail)
+        store = Store(config.store_url)
+        try:
+            run_id = store.start_run(str(event.scheduled_run_time.date()), when)
+            store.end_run(run_id, when, what, f"{site_id}: {detail}")
+        finally:
+            store.close()
+
+    scheduler.add_listener(listen, EVENT_JOB_ERROR | EVENT_JOB_MISSED | EVENT_JOB_EXECUTED)
+
+
+def status_lines(config: Config) -> list[str]:
+    """Per site: last run, its status, last level, data freshness (from the store)."""
+    store = Store(config.store_url)
+    try:
+        runs = store.runs()
+        lines = []
+        for site in config.sites:
+            last = store.latest_report(site.id)
+            if last is None:
+                lines.append(f"{site.name} ({site.id}): no report recorded yet")
+                continue
+            run = next((r for r in reversed(runs) if r["id"] == last.run_id), None)
+            fresh = _freshness(last.paths)
+            lines.append(f"{site.name} ({site.id}): last report for {last.as_of} (revision "
+                         f"{last.revision}), status {last.status}, level {last.level or 'none'}; "
+                         f"run {run['id'] if run else '?'} {run['status'] if run else '?'} at "
+                         f"{last.issued_at}; {fresh}")
+        if runs:
+            r = runs[-1]
+            lines.append(f"last run: {r['as_of']} started {r['started_at']}, status {r['status']}"
+                         + (f" ({r['error']})" if r["error"] else ""))
+        return lines
+    finally:
+        store.close()
+
+
+def _freshness(paths: list[str]) -> str:
+    import json
+
+    doc = next((p for p in paths if p.endswith(".json")), None)
+    if doc is None or not Path(doc).exists():
+        return "freshness unknown"
+    c = json.loads(Path(doc).read_text(encoding="utf-8"))
+    wx = c["freshness"]["weather_age_days"]
+    age = c["observed"]["age_days"]
+    return (f"weather {'n/a' if wx is None else f'{wx * 24:.0f} h'} old, last sample "
+            f"{'n/a' if age is None else f'{age:.0f} days'} old at issue")
