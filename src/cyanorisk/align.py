@@ -78,7 +78,8 @@ def last_known(issues: pd.DataFrame, totals: pd.DataFrame, scheme: Scheme,
     left["_order"] = np.arange(len(left))
     left = left.sort_values("issue_time_utc", kind="stable")
     right = t[["site_id", "known_at", "sampled_at", "cyano_cells_per_ml", "cyano_censor", "level"]]
-    right = right.astype({"known_at": UTC_NS, "sampled_at": UTC_NS})
+    right = right.astype({"known_at": UTC_NS, "sampled_at": UTC_NS, "site_id": "str"})
+    left["site_id"] = left["site_id"].astype("str")
     merged = pd.merge_asof(left, right, left_on="issue_time_utc", right_on="known_at",
                            by="site_id", direction="backward", allow_exact_matches=True)
     merged = merged.sort_values("_order").reset_index(drop=True)

@@ -151,7 +151,9 @@ def _scores(block: pd.DataFrame, source: str, warn_at: float | None,
     events = int(np.nansum(o))  # observed whatever was forecast
     out = {"n": n, "events": events, "brier": brier_score(p, o), "roc_auc": roc_auc(p, o)}
     notes = []
-    if n == 0:
+    if np.isnan(p).all():
+        notes.append("no forecast issued")
+    elif n == 0:
         notes.append("no forecast issued with a sample in its window")
     elif events == 0:
         notes.append("no exceedance in this season: ROC AUC not defined")
@@ -168,6 +170,8 @@ def _scores(block: pd.DataFrame, source: str, warn_at: float | None,
                                                int(block["horizon_days"].iloc[0]))
         if not exceed_dates:
             notes.append("no sample met the level this season: no lead time")
+        elif np.isnan(p).all():
+            pass  # no forecast was issued at all; said above, not a miss
         elif not warned.any():
             notes.append("the level was met but no warning was issued: missed")
     out["note"] = "; ".join(notes)

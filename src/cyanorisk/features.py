@@ -146,9 +146,14 @@ class _Windowed:
     or before it. Cumulative sums are computed once per array and reused across windows.
     """
 
-    def __init__(self, step_h: float, end: np.ndarray) -> None:
-        self.step_h, self.end = step_h, end
+    def __init__(self, step_h: float, end: np.ndarray, n_grid: int) -> None:
+        self.step_h, self.end, self.n_grid = step_h, end, n_grid
         self._cums: dict[int, tuple[np.ndarray, np.ndarray]] = {}
+
+    def _bounds(self, n: int) -> tuple[np.ndarray, np.ndarray]:
+        """Window [start, end) of n intervals before each issue instant, clipped to the record
+        (a window running past either end of the record holds fewer values, not other ones)."""
+        return np.clip(self.end - n, 0, self.n_grid), np.clip(self.end, 0, self.n_grid)
 
     def _cum(self, values: np.ndarray) -> np.ndarray:
         hit = self._cums.get(id(values))
@@ -165,13 +170,14 @@ class _Windowed:
         """How many of ``mask`` in each window, and which windows run past the series start."""
         n = self.size(days)
         c = self._cum(mask)
-        start = np.maximum(self.end - n, 0)
-        return (c[self.end] - c[start]).astype(float), self.end < n
+        start, end = self._bounds(n)
+        return (c[end] - c[start]).astype(float), self.end < n
 
     def total(self, values: np.ndarray, days: int) -> np.ndarray:
         n = self.size(days)
         c = self._cum(values)
-        return c[self.end] - c[np.maximum(self.end - n, 0)]
+        start, end = self._bounds(n)
+        return c[end] - c[start]
 
 
 def issue_instants(days: pd.DatetimeIndex | Sequence, timezone: str, issue_time: str) -> pd.DatetimeIndex:
@@ -220,8 +226,7 @@ class FeatureBuilder:
         # intervals [t, t + step) entirely before the issue instant
         first = weather.index[0]
         end = np.floor(np.asarray((issue - first) / step)).astype(np.int64)
-        end = np.clip(end, 0, len(weather))
-        win = _Windowed(step / pd.Timedelta(hours=1), end)
+        win = _Windowed(step / pd.Timedelta(hours=1), end, len(weather))
         cols: dict[str, np.ndarray] = {}
         if "air_temp_c" in weather:
             t = weather["air_temp_c"].to_numpy(dtype=float)
@@ -347,6 +352,6 @@ class FeatureBuilder:
         run = np.where(calm, idx - last_break, 0)
         padded = np.concatenate((np.zeros(n, dtype=np.int64), run))
         windows = np.lib.stride_tricks.sliding_window_view(padded, n)  # windows[k] ends at k-1
-        rows = windows[win.end]  # the n intervals before each issue instant
+        rows = windows[np.clip(win.end, 0, win.n_grid)]  # n intervals before each issue instant
         longest = np.minimum(rows, np.arange(1, n + 1)).max(axis=1)  # clip runs at window start
         return self._gate(longest * win.step_h, win, good, days)

@@ -133,7 +133,8 @@ def assess(site: Site, models: Models, weather: pd.DataFrame, totals: pd.DataFra
     status = STATUS_INSUFFICIENT if reasons else STATUS_ASSESSED
     rank = forecast_rank(p_today, thresholds, names) if status == STATUS_ASSESSED else None
     observed_rank = None if not sample_known else float(last["last_level"])
-    caution_rank = rank if rank is not None else int(observed_rank or 0)
+    undecided = observed_rank is None or np.isnan(observed_rank)
+    caution_rank = rank if rank is not None else (0 if undecided else int(observed_rank))
     shown = names[max(rank, 1) - 1] if rank is not None else None  # the level the headline quotes
     if status == STATUS_ASSESSED:
         h = models.risk.horizon_days

@@ -12,6 +12,7 @@ from cyanorisk.atomic import write_group
 from cyanorisk.config import Config, Site
 from cyanorisk.features import issue_instants
 from cyanorisk.forecast import Assessment, Models, Thresholds, assess
+from cyanorisk.ingest.samples import empty_totals
 from cyanorisk.ingest.sites import SiteSamples, SiteWeather
 from cyanorisk.model import ModelFileError, load_bundle, save_bundle
 from cyanorisk.report.daily import render_html, render_json, render_text, report_stem
@@ -102,17 +103,13 @@ def default_as_of(weather: pd.DataFrame, timezone: str) -> pd.Timestamp:
     return weather.index[-1].tz_convert(timezone).tz_localize(None).normalize()
 
 
-EMPTY_TOTALS = ["site_id", "sample_id", "sampled_at", "reported_at", "cyano_cells_per_ml",
-                "cyano_censor"]
-
-
 def assess_site(config: Config, site: Site, weather: pd.DataFrame, totals: pd.DataFrame | None,
                 rows: dict[str, dict | None], as_of: pd.Timestamp | None) -> Assessment:
     """The day's assessment of a site from its clean data and its saved models."""
     models = load_models(config, site)
     day = as_of if as_of is not None else default_as_of(weather, site.timezone)
     issue = issue_instants(pd.DatetimeIndex([day]), site.timezone, site.drivers.issue_time)[0]
-    totals = totals if totals is not None else pd.DataFrame(columns=EMPTY_TOTALS)
+    totals = totals if totals is not None else empty_totals()
     return assess(site, models, weather, totals, day, thresholds_for(config, site),
                   quality_notes(weather, rows["weather"] or {}, rows.get("samples"), issue))
 

@@ -16,6 +16,7 @@ import cyanorisk
 from cyanorisk.align import level_slug, training_table
 from cyanorisk.config import Site
 from cyanorisk.features import FeatureBuilder
+from cyanorisk.ingest.samples import empty_totals
 from cyanorisk.model import (
     DEFAULT_DRIVERS,
     ClimatologyModel,
@@ -33,8 +34,7 @@ def site_training_table(site: Site, weather: pd.DataFrame, totals: pd.DataFrame 
     """Drivers for every issue day of the weather record, joined with the lab results."""
     drivers = FeatureBuilder(site.drivers, site.timezone).transform(weather)
     if totals is None:
-        totals = pd.DataFrame(columns=["site_id", "sample_id", "sampled_at", "reported_at",
-                                       "cyano_cells_per_ml", "cyano_censor"])
+        totals = empty_totals()
     lab_delay = site.samples.lab_delay_days if site.samples else 3.0
     return training_table(drivers, totals, site.alert_scheme(), site.id, lab_delay, site.timezone)
 

@@ -75,11 +75,13 @@ def roc_curve(score: np.ndarray, o: np.ndarray) -> pd.DataFrame:
     """ROC points (false-alarm rate, hit rate) for every distinct threshold, highest first."""
     s, o = _clean(score, o)
     thresholds = np.unique(s)[::-1]
-    n_pos, n_neg = max(int((o == 1).sum()), 1), max(int((o == 0).sum()), 1)
-    rows = [(np.inf, 0.0, 0.0)]
-    for t in thresholds:
+    n_pos, n_neg = int((o == 1).sum()), int((o == 0).sum())
+    nan = float("nan")
+    rows = [(np.inf, 0.0 if n_neg else nan, 0.0 if n_pos else nan)]
+    for t in thresholds:  # a rate without cases to count is undefined (NaN), as in scikit-learn
         warn = s >= t
-        rows.append((t, float((warn & (o == 0)).sum() / n_neg), float((warn & (o == 1)).sum() / n_pos)))
+        rows.append((t, float((warn & (o == 0)).sum() / n_neg) if n_neg else nan,
+                     float((warn & (o == 1)).sum() / n_pos) if n_pos else nan))
     return pd.DataFrame(rows, columns=["threshold", "false_alarm_rate", "hit_rate"])
 
 
@@ -91,7 +93,7 @@ def reliability_table(p: np.ndarray, o: np.ndarray, bins: int = 10) -> pd.DataFr
     Atmospheric Sciences, ch. 8, reliability diagram).
     """
     p, o = _clean(p, o)
-    edges = np.linspace(0.0, 1.0, bins + 1)
+    edges = np.round(np.linspace(0.0, 1.0, bins + 1), 12)  # 0.3, not 0.30000000000000004
     which = np.clip(np.digitize(p, edges[1:-1], right=False), 0, bins - 1)
     rows = []
     for b in range(bins):

@@ -532,3 +532,14 @@ def sample_totals(records: pd.DataFrame, taxa: Mapping[str, Taxon]) -> pd.DataFr
     out = out.drop(columns=list(parts) + ["n_counted", "toxic_upper_cells_per_ml"])
     return out.sort_values(
         ["site_id", "sampled_at"], ignore_index=True)
+
+
+def empty_totals() -> pd.DataFrame:
+    """A per-sample table with no rows but the right column types (a site without lab files)."""
+    utc = "datetime64[ns, UTC]"
+    return pd.DataFrame({"site_id": pd.Series(dtype=object), "sample_id": pd.Series(dtype=object),
+                         "sampled_at": pd.Series(dtype=utc), "reported_at": pd.Series(dtype=utc),
+                         "cyano_cells_per_ml": pd.Series(dtype=float),
+                         "cyano_censor": pd.Series(dtype=object),
+                         "toxic_cells_per_ml": pd.Series(dtype=float),
+                         "toxic_censor": pd.Series(dtype=object)})

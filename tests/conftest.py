@@ -1,0 +1,76 @@
+"""Shared fixtures.
+
+``demo_site``: the fictitious demo reservoir (cyanorisk.demo) built once per test session with a
+smaller record than ``cyanorisk demo`` makes (8 years instead of 12, the seed of
+src/cyanorisk/data/demo.toml), ingested with the demo configuration re-rooted in a temporary
+folder (as tests/test_cli.py does), its training table built and its models fitted and saved under
+the temporary models/ folder. Tests must not change what it holds; tests that write reports or
+models point a copy of the configuration elsewhere with :meth:`DemoSite.write_config`.
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+from pathlib import Path
+
+import pandas as pd
+import pytest
+
+from cyanorisk.config import Config, Site, embedded_demo_text, load_config
+from cyanorisk.demo import write_demo
+from cyanorisk.ingest.sites import SiteSamples, SiteWeather, ingest_site_samples, ingest_site_weather
+from cyanorisk.reporting import save_models
+from cyanorisk.training import FittedSite, fit_site, site_training_table
+
+DEMO_YEARS = 8
+DEMO_SEED = 20261202
+"""The seed of the demo configuration (src/cyanorisk/data/demo.toml)."""
+
+
+@dataclass
+class DemoSite:
+    """The demo reservoir after ingest and training."""
+
+    root: Path
+    config_path: Path
+    config: Config
+    site: Site
+    weather: SiteWeather
+    samples: SiteSamples
+    table: pd.DataFrame
+    """Training table (site_training_table)."""
+    fitted: FittedSite
+    """Models fitted without cross-validation; saved at ``model_file``."""
+    model_file: Path
+
+    def write_config(self, path: Path, **dirs: Path) -> Path:
+        """A copy of the demo configuration at ``path`` that reads the demo's data, with
+        ``data_dir``, ``reports_dir`` or ``models_dir`` moved to the (absolute) paths given."""
+        text = self.config_path.read_text(encoding="utf-8")
+        text, n = re.subn(r'(?m)^root = "[^"]*"', f'root = "{self.root.as_posix()}"', text)
+        assert n == 1
+        for key, value in dirs.items():
+            text, n = re.subn(rf'(?m)^{key} = "[^"]*"', f'{key} = "{Path(value).as_posix()}"', text)
+            assert n == 1, f"no top-level key {key!r} in the demo configuration"
+        path.write_text(text, encoding="utf-8")
+        return path
+
+
+@pytest.fixture(scope="session")
+def demo_site(tmp_path_factory) -> DemoSite:
+    root = tmp_path_factory.mktemp("demo")
+    config_path = root / "demo.toml"
+    text = embedded_demo_text()
+    assert re.search(r'(?m)^root = "\.\."', text)
+    config_path.write_text(re.sub(r'(?m)^root = "\.\."', 'root = "."', text), encoding="utf-8")
+    config = load_config(config_path, check_files=False)
+    write_demo(config.demo.out_dir, DEMO_YEARS, DEMO_SEED)
+    config = load_config(config_path)
+    site = config.sites[0]
+    weather = ingest_site_weather(config, site)
+    samples = ingest_site_samples(config, site, weather.meta)
+    table = site_training_table(site, weather.data, samples.totals)
+    fitted = fit_site(site, table, cross_validation=False)
+    model_file = save_models(config, fitted)
+    return DemoSite(root, config_path, config, site, weather, samples, table, fitted, model_file)
