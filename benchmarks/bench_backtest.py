@@ -16,25 +16,17 @@ import argparse
 import re
 import sys
 import tempfile
-import time
 from pathlib import Path
 
 import pandas as pd
 
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+from bench_ingest import best_of
 from cyanorisk.backtest import walk_forward
 from cyanorisk.config import embedded_demo_text, load_config
 from cyanorisk.demo import write_demo
 from cyanorisk.ingest.sites import ingest_site_samples, ingest_site_weather
 from cyanorisk.training import season_of, site_training_table
-
-
-def best_of(fn, repeat: int) -> float:
-    best = float("inf")
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        fn()
-        best = min(best, time.perf_counter() - t0)
-    return best
 
 
 def main() -> None:

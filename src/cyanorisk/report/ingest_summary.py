@@ -16,6 +16,17 @@ def summary_data(weather: SiteWeather, samples: SiteSamples | None, outputs: lis
     return data
 
 
+def _ledger_lines(by_reason: dict[str, int], rejects, indent: str) -> list[str]:
+    """The rejects ledger in two lines: counts by reason, and the first entry."""
+    if not by_reason:
+        return []
+    first = rejects.iloc[0]
+    return [indent + "rejects ledger by reason: "
+            + ", ".join(f"{k} {v:,}" for k, v in sorted(by_reason.items())),
+            f"{indent}first: {first['file']}, line {first['line']}"
+            + (f", column '{first['column']}'" if first["column"] else "") + f": {first['message']}"]
+
+
 def _pct(part: int, whole: int) -> str:
     return f"{100 * part / whole:.1f}%" if whole else "n/a"
 
@@ -33,14 +44,7 @@ def summary_text(weather: SiteWeather, samples: SiteSamples | None, outputs: lis
         f"{a.duplicates_identical:,}, conflicting duplicates {a.duplicates_conflicting:,}, "
         f"off-grid {a.off_grid:,}, rejected {a.rejected:,}",
     ]
-    by_reason = meta.summary()["ledger_by_reason"]
-    if by_reason:
-        lines.append("  rejects ledger by reason: "
-                     + ", ".join(f"{k} {v:,}" for k, v in sorted(by_reason.items())))
-        first = meta.rejects.iloc[0]
-        lines.append(f"  first: {first['file']}, line {first['line']}"
-                     + (f", column '{first['column']}'" if first["column"] else "")
-                     + f": {first['message']}")
+    lines += _ledger_lines(meta.summary()["ledger_by_reason"], meta.rejects, "  ")
     if meta.ambiguous_resolved or meta.nonexistent_rejected:
         lines.append(f"  daylight saving: {meta.ambiguous_resolved} stamp(s) in a repeated hour "
                      f"resolved by file order, {meta.nonexistent_rejected} in a skipped hour "
@@ -69,14 +73,7 @@ def _samples_text(samples: SiteSamples) -> list[str]:
              f"    rows read {a.read:,}: kept {a.kept:,}, identical duplicates merged "
              f"{a.duplicates_identical:,}, conflicting duplicates {a.duplicates_conflicting:,}, "
              f"rejected {a.rejected:,}"]
-    by_reason = m.summary()["ledger_by_reason"]
-    if by_reason:
-        lines.append("    rejects ledger by reason: "
-                     + ", ".join(f"{k} {v:,}" for k, v in sorted(by_reason.items())))
-        first = m.rejects.iloc[0]
-        lines.append(f"    first: {first['file']}, line {first['line']}"
-                     + (f", column '{first['column']}'" if first["column"] else "")
-                     + f": {first['message']}")
+    lines += _ledger_lines(m.summary()["ledger_by_reason"], m.rejects, "    ")
     if m.flag_counts:
         lines.append("    repaired or assumed: "
                      + ", ".join(f"{k} {v:,}" for k, v in sorted(m.flag_counts.items())))
