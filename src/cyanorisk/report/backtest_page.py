@@ -77,8 +77,10 @@ def timeline_plot(forecasts: pd.DataFrame, counts: pd.DataFrame, season: int, na
 
 
 def _table(frame: pd.DataFrame) -> str:
-    return frame.to_html(index=False, float_format=lambda v: f"{v:.3f}", na_rep="n/a",
-                         border=0, escape=True)
+    table = frame.to_html(index=False, float_format=lambda v: f"{v:.3f}", na_rep="n/a",
+                          border=0, escape=True)
+    return f'<div style="overflow-x:auto;font-size:0.8em">{table}</div>'
+
 
 
 def render_backtest(site_name: str, result, counts: pd.DataFrame, names: list[str],
