@@ -78,7 +78,12 @@ def write_tuning(config: Config, site: Site, choices: list[Choice], span: str) -
     fig, ax = plt.subplots(figsize=(7, 3.5))
     tradeoff_plot(choices, ax=ax)
     plot = config.reports_dir / site.id / f"tuning_{span}.png"
-    text = thresholds_toml(site.id, choices, span)
+    tuned = {c.level for c in choices}
+    kept = {}
+    if thresholds_path(config, site.id).exists():  # levels not tuned now keep their threshold
+        earlier = thresholds_for(config, site).warn_at
+        kept = {level: v for level, v in earlier.items() if level not in tuned}
+    text = thresholds_toml(site.id, choices, span, kept)
     return write_group({
         thresholds_path(config, site.id): lambda tmp: tmp.write_text(text, encoding="utf-8"),
         plot: lambda tmp: (fig.savefig(tmp, format="png", dpi=110, bbox_inches="tight"),

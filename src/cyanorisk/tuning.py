@@ -23,6 +23,11 @@ THRESHOLDS = np.round(np.arange(0.01, 1.0, 0.01), 2)
 """Probability thresholds swept: 0.01 to 0.99."""
 
 
+def _pct(share: float) -> str:
+    """A share as a percentage with no more digits than it has: 0.9 -> 90%, 0.975 -> 97.5%."""
+    return f"{round(100 * share, 1):g}%"
+
+
 def sweep(forecasts: pd.DataFrame, exceedances: pd.DataFrame,
           thresholds: np.ndarray = THRESHOLDS, lead_times: bool = True) -> pd.DataFrame:
     """The trade-off table of one level: a row per threshold.
@@ -83,8 +88,8 @@ def choose_by_hit_rate(table: pd.DataFrame, target: float) -> float:
         raise ValueError("the target hit rate must be in (0, 1]")
     ok = table[table["hit_rate"] >= target]
     if ok.empty:
-        raise ValueError(f"no threshold reaches a hit rate of {target:.0%} in this backtest "
-                         f"(best: {table['hit_rate'].max():.0%})")
+        raise ValueError(f"no threshold reaches a hit rate of {_pct(target)} in this backtest "
+                         f"(best: {_pct(table['hit_rate'].max())})")
     return float(ok["threshold"].max())
 
 
@@ -132,12 +137,14 @@ def tune_level(forecasts: pd.DataFrame, exceedances: pd.DataFrame, level: str, *
         except ValueError:
             boot.append(np.nan)
     rule = (f"miss cost {miss_cost:g} (a missed exceedance costs {miss_cost:g} false alarms)"
-            if miss_cost is not None else f"target hit rate {target_hit_rate:.0%}")
+            if miss_cost is not None else f"target hit rate {_pct(target_hit_rate)}")
     return Choice(level, chosen, rule, table, np.array(boot, dtype=float))
 
 
-def thresholds_toml(site_id: str, choices: list[Choice], seasons: str) -> str:
-    """The tuned thresholds as a TOML file the daily report reads."""
+def thresholds_toml(site_id: str, choices: list[Choice], seasons: str,
+                    kept: dict[str, float] | None = None) -> str:
+    """The tuned thresholds as a TOML file the daily report reads. ``kept``: thresholds of
+    levels not tuned this time, carried over from the earlier file."""
     lines = [f"# Warning thresholds for site '{site_id}', written by `cyanorisk tune`.",
              "# The daily report of this site applies them and names this file.",
              f'site_id = "{site_id}"',
@@ -146,4 +153,6 @@ def thresholds_toml(site_id: str, choices: list[Choice], seasons: str) -> str:
     for c in choices:
         lo, hi = c.spread()
         lines.append(f'"{c.level}" = {c.threshold:.2f}    # bootstrap 90% range {lo:.2f} to {hi:.2f}')
+    for level, value in (kept or {}).items():
+        lines.append(f'"{level}" = {value:.2f}    # kept from the earlier file: not tuned this time')
     return "\n".join(lines) + "\n"
