@@ -1,9 +1,8 @@
 """Walk-forward backtests (cyanorisk.backtest) on the demo reservoir, and ``cyanorisk backtest``.
 
-The demo data (cyanorisk.demo) are generated once for this module: 8 years ending on 14 January
+The demo data are the session's (tests/conftest.py, ``demo_site``): 8 years ending on 14 January
 2025 (demo.END), so the record holds the bloom seasons (July to June) starting 2016 to 2024, the
-first and last of them partial. They are ingested with the demo configuration re-rooted in a
-temporary folder, as tests/test_cli.py does.
+first and last of them partial.
 """
 
 from __future__ import annotations
@@ -28,15 +27,10 @@ from cyanorisk.backtest import (
     walk_forward,
 )
 from cyanorisk.cli import main
-from cyanorisk.config import Config, Site, embedded_demo_text, load_config
-from cyanorisk.demo import write_demo
-from cyanorisk.ingest.sites import SiteSamples, SiteWeather, ingest_site_samples, ingest_site_weather
+from cyanorisk.config import Site
 from cyanorisk.model import prepare
 from cyanorisk.training import fit_models, season_of, site_training_table
 
-DEMO_YEARS = 8
-DEMO_SEED = 20261202
-"""The seed of the demo configuration (src/cyanorisk/data/demo.toml)."""
 DEMO_SEASONS = list(range(2016, 2025))
 """Season start years of the 8-year demo record (14 January 2017 to 14 January 2025 local)."""
 FORECAST_COLUMNS = ["probability", "climatology", "persistence"]
@@ -44,46 +38,25 @@ FORECAST_COLUMNS = ["probability", "climatology", "persistence"]
 
 @dataclass
 class Demo:
-    root: Path
-    config_path: Path
-    config: Config
-    site: Site
-    weather: SiteWeather
-    samples: SiteSamples
-    table: pd.DataFrame
+    """The session's demo site (tests/conftest.py) with what the backtests need besides."""
+
+    site_data: object
     available: list[int]
     warn_at: dict[str, float]
 
+    def __getattr__(self, name: str):
+        return getattr(self.site_data, name)
+
     def config_copy(self, path: Path, **dirs: Path) -> Path:
-        """The demo configuration at ``path``, reading the demo's data, with the top-level
-        folders given (data_dir, reports_dir, models_dir) moved to absolute paths."""
-        text = self.config_path.read_text(encoding="utf-8")
-        text, n = re.subn(r'(?m)^root = "[^"]*"', f'root = "{self.root.as_posix()}"', text)
-        assert n == 1
-        for key, value in dirs.items():
-            text, n = re.subn(rf'(?m)^{key} = "[^"]*"', f'{key} = "{Path(value).as_posix()}"', text)
-            assert n == 1, key
-        path.write_text(text, encoding="utf-8")
-        return path
+        """The demo configuration at ``path`` with its output folders moved (conftest)."""
+        return self.site_data.write_config(path, **dirs)
 
 
 @pytest.fixture(scope="module")
-def demo(tmp_path_factory) -> Demo:
-    root = tmp_path_factory.mktemp("backtest_demo")
-    config_path = root / "demo.toml"
-    text = embedded_demo_text()
-    assert re.search(r'(?m)^root = "\.\."', text)
-    config_path.write_text(re.sub(r'(?m)^root = "\.\."', 'root = "."', text), encoding="utf-8")
-    config = load_config(config_path, check_files=False)
-    write_demo(config.demo.out_dir, DEMO_YEARS, DEMO_SEED)
-    config = load_config(config_path)
-    site = config.sites[0]
-    weather = ingest_site_weather(config, site)
-    samples = ingest_site_samples(config, site, weather.meta)
-    table = site_training_table(site, weather.data, samples.totals)
+def demo(demo_site) -> Demo:
+    site, table = demo_site.site, demo_site.table
     available = sorted(set(season_of(table["issue_date"], site.model.season_start_month).tolist()))
-    warn_at = {name: 0.5 for name in site.alert_scheme().names}
-    return Demo(root, config_path, config, site, weather, samples, table, available, warn_at)
+    return Demo(demo_site, available, {name: 0.5 for name in site.alert_scheme().names})
 
 
 @pytest.fixture(scope="module")

@@ -25,12 +25,10 @@ from hypothesis import strategies as st
 
 from cyanorisk.backtest import parse_seasons, walk_forward
 from cyanorisk.cli import main
-from cyanorisk.config import Config, Site, embedded_demo_text, load_config
-from cyanorisk.demo import write_demo
-from cyanorisk.ingest.sites import ingest_site_samples, ingest_site_weather
+from cyanorisk.config import load_config
 from cyanorisk.model import ModelFileError
-from cyanorisk.reporting import DEFAULT_WARN_AT, save_models, thresholds_for
-from cyanorisk.training import fit_site, season_of, site_training_table
+from cyanorisk.reporting import DEFAULT_WARN_AT, thresholds_for
+from cyanorisk.training import season_of
 from cyanorisk.tuning import THRESHOLDS, choose_by_cost, choose_by_hit_rate, sweep, tune_level
 from cyanorisk.verify import contingency
 
@@ -170,57 +168,35 @@ def test_tune_level_needs_exactly_one_rule(kwargs):
 # cyanorisk tune on the demo, and the daily report that follows
 # ---------------------------------------------------------------------------------------------
 
-DEMO_YEARS = 8
-DEMO_SEED = 20261202
-"""The seed of the demo configuration (src/cyanorisk/data/demo.toml)."""
 SITE_ID = "tallowbark"
 
 
 @dataclass
 class Demo:
-    root: Path
-    config_path: Path
-    config: Config
-    site: Site
-    table: pd.DataFrame
-    totals: pd.DataFrame
-    model_file: Path
-    """The site's models, fitted once (no cross-validation)."""
+    """The session's demo site (tests/conftest.py), as the tuning tests use it."""
+
+    site_data: object
+
+    def __getattr__(self, name: str):
+        return getattr(self.site_data, name)
+
+    @property
+    def totals(self) -> pd.DataFrame:
+        return self.site_data.samples.totals
 
     def config_copy(self, folder: Path) -> Path:
         """The demo configuration in ``folder``, reading the demo's data and writing its clean
         data, reports and models under ``folder``; the fitted models copied there."""
-        text = self.config_path.read_text(encoding="utf-8")
-        text, n = re.subn(r'(?m)^root = "[^"]*"', f'root = "{self.root.as_posix()}"', text)
-        assert n == 1
-        for key in ("data_dir", "reports_dir", "models_dir"):
-            name = key.removesuffix("_dir")
-            text, n = re.subn(rf'(?m)^{key} = "[^"]*"', f'{key} = "{(folder / name).as_posix()}"',
-                              text)
-            assert n == 1, key
         (folder / "models").mkdir()
         shutil.copy(self.model_file, folder / "models" / self.model_file.name)
-        path = folder / "site.toml"
-        path.write_text(text, encoding="utf-8")
-        return path
+        return self.site_data.write_config(folder / "site.toml", data_dir=folder / "data",
+                                           reports_dir=folder / "reports",
+                                           models_dir=folder / "models")
 
 
 @pytest.fixture(scope="module")
-def demo(tmp_path_factory) -> Demo:
-    root = tmp_path_factory.mktemp("tuning_demo")
-    config_path = root / "demo.toml"
-    text = embedded_demo_text()
-    assert re.search(r'(?m)^root = "\.\."', text)
-    config_path.write_text(re.sub(r'(?m)^root = "\.\."', 'root = "."', text), encoding="utf-8")
-    config = load_config(config_path, check_files=False)
-    write_demo(config.demo.out_dir, DEMO_YEARS, DEMO_SEED)
-    config = load_config(config_path)
-    site = config.sites[0]
-    weather = ingest_site_weather(config, site)
-    samples = ingest_site_samples(config, site, weather.meta)
-    table = site_training_table(site, weather.data, samples.totals)
-    model_file = save_models(config, fit_site(site, table, cross_validation=False))
-    return Demo(root, config_path, config, site, table, samples.totals, model_file)
+def demo(demo_site) -> Demo:
+    return Demo(demo_site)
 
 
 @pytest.fixture(scope="module")
