@@ -94,8 +94,9 @@ def deduplicate(rows: Rows, policy: str, ledger: Ledger,
         same = ((v == kv) | (np.isnan(v) & np.isnan(kv))) & (s == s[keep_at])
         identical &= same
         differs = np.add.reduceat((~same).astype(np.int64), starts) > 0
-        conflict = rows.conflict.setdefault(name, np.zeros(len(rows.t), dtype=bool))
-        conflict[involved[kept_of_group[differs]]] = True
+        if differs.any():
+            conflict = rows.conflict.setdefault(name, np.zeros(len(rows.t), dtype=bool))
+            conflict[involved[kept_of_group[differs]]] = True
     superseded = ~is_kept & ~identical
     for k in np.unique(rows.file[involved[superseded]]):
         sel = involved[superseded][rows.file[involved[superseded]] == k]
@@ -150,16 +151,22 @@ def to_grid(rows: Rows, idx: np.ndarray, step_ns: int, origin_ns: int, off_grid:
     sub_starts = _group_starts(cell[multi_rows])
     multi_pos = cell[multi_rows][sub_starts] - first_cell
     # a cell whose one reading lies between grid points holds a reading moved, not one on the grid
-    moved = (rows.t[src] - origin_ns) % step_ns != 0
+    lead_pos = cell[lead] - first_cell
+    moved = lead_pos[(rel[lead] % step_ns) != 0]
+    cell_of_row = None  # grid position of each kept row, built only when a conflict needs it
     values, states = {}, {}
     for name, v in rows.values.items():
         full, full_state = np.take(v, src), np.take(rows.states[name], src)
-        ok = full_state == Flag.OK
-        full_state[ok & moved] = Flag.AGGREGATED
+        st = full_state[moved]
+        full_state[moved] = np.where(st == Flag.OK, Flag.AGGREGATED, st)
         conflict = rows.conflict.get(name)
         if conflict is not None:
-            hit = np.take(conflict, src) & (full_state < Flag.DUPLICATE_CONFLICT)
-            full_state[hit] = Flag.DUPLICATE_CONFLICT
+            if cell_of_row is None:
+                cell_of_row = np.full(len(rows.t), -1, dtype=np.int64)
+                cell_of_row[idx[lead]] = lead_pos
+            pos = cell_of_row[np.flatnonzero(conflict)]
+            pos = pos[pos >= 0]
+            full_state[pos] = np.maximum(full_state[pos], Flag.DUPLICATE_CONFLICT)
         full[empty], full_state[empty] = np.nan, Flag.MISSING
         if len(multi_rows):
             at = idx[multi_rows]
