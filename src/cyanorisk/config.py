@@ -158,6 +158,13 @@ class ServiceSettings:
     misfire_grace_hours: float = 6.0
     """How late a scheduled run may still start (APScheduler's default of 1 s would skip it)."""
     max_catch_up_days: int = 14
+    """At most this many missed days are caught up on start (0: none)."""
+
+    def __post_init__(self) -> None:
+        if self.max_catch_up_days < 0:
+            raise ValueError("max_catch_up_days must be 0 or more")
+        if self.misfire_grace_hours <= 0:
+            raise ValueError("misfire_grace_hours must be positive")
 
 
 @dataclass(frozen=True)

@@ -122,18 +122,23 @@ def fingerprint(as_of: str, inputs: dict[str, Any]) -> str:
 
 
 def _changes(old: dict[str, Any], new: dict[str, Any]) -> list[str]:
+    """What differs between the inputs of two revisions (keys missing on either side, as after
+    a failure to read the inputs, are not compared)."""
     said = []
-    old_files, new_files = old.get("files", {}), new.get("files", {})
-    for path in sorted(set(old_files) | set(new_files)):
-        if path not in old_files:
-            said.append(f"new file {Path(path).name}")
-        elif path not in new_files:
-            said.append(f"file gone: {Path(path).name}")
-        elif old_files[path] != new_files[path]:
-            said.append(f"changed file {Path(path).name}")
+    if "files" in old and "files" in new:
+        old_files, new_files = old["files"], new["files"]
+        for path in sorted(set(old_files) | set(new_files)):
+            if path not in old_files:
+                said.append(f"new file {Path(path).name}")
+            elif path not in new_files:
+                said.append(f"file gone: {Path(path).name}")
+            elif old_files[path] != new_files[path]:
+                said.append(f"changed file {Path(path).name}")
     for key in ("model", "thresholds", "cyanorisk_version"):
-        if old.get(key) != new.get(key):
+        if key in old and key in new and old[key] != new[key]:
             said.append(f"{key.replace('_', ' ')} changed")
+    if "error" in old and "error" not in new:
+        said.append("the earlier failure is resolved")
     return said
 
 
@@ -142,15 +147,18 @@ def _site_data(config: Config, site: Site, store: Store, inputs: dict[str, Any],
     """The site's clean weather and sample totals: from the last ingest when no file changed."""
     paths = site_paths(config, site.id)
     summary = config.data_dir / site.id / "ingest_rows.json"
-    known = all(store.file_known(site.id, p, h) for p, h in inputs["files"].items())
     needed = [paths["weather"], summary] + ([paths["sample_totals"]] if site.samples else [])
-    if known and all(p.exists() for p in needed):
-        totals = pd.read_parquet(paths["sample_totals"]) if site.samples else None
-        return pd.read_parquet(paths["weather"]), totals, json.loads(summary.read_text())
+    if all(p.exists() for p in needed):
+        cached = json.loads(summary.read_text(encoding="utf-8"))
+        # the clean tables serve only while the files behind them are exactly the current ones
+        if cached.get("files") == inputs["files"]:
+            totals = pd.read_parquet(paths["sample_totals"]) if site.samples else None
+            return pd.read_parquet(paths["weather"]), totals, cached
     weather = ingest_site_weather(config, site)
     samples = ingest_site_samples(config, site, weather.meta)
     rows = {"weather": weather.meta.account.as_dict(),
-            "samples": samples.meta.account.as_dict() if samples else None}
+            "samples": samples.meta.account.as_dict() if samples else None,
+            "files": inputs["files"]}
     write_site_ingest(config, weather, samples)
     write_group({summary: lambda tmp: tmp.write_text(json.dumps(rows), encoding="utf-8")})
     for path, digest in inputs["files"].items():
@@ -185,13 +193,15 @@ def notify(config: Config, assessment: Assessment, previous: IssuedReport | None
 
 def _issue(config: Config, site: Site, store: Store, as_of: str, run_id: int, when: str,
            assessment: Assessment, inputs: dict[str, Any], fp: str,
-           previous_same_day: IssuedReport | None) -> SiteOutcome:
+           previous_same_day: IssuedReport | None, failure: str | None = None) -> SiteOutcome:
     paths = [str(p) for p in write_report(config, assessment)]
     c = assessment.content
     revision = previous_same_day.revision + 1 if previous_same_day else 1
     reason = ("first report for this day" if previous_same_day is None else
               "inputs changed: " + ", ".join(_changes(previous_same_day.inputs, inputs) or
                                              ["status changed"]))
+    if failure is not None:
+        reason = f"no assessment: {failure}; {reason}"
     previous = store.latest_report(site.id, as_of) or store.latest_report(site.id, before=as_of)
     note = notify(config, assessment, previous, revision) if c["status"] != STATUS_NONE else None
     thresholds = {"warn_at": c["forecast"]["warn_at"], "source": c["forecast"]["thresholds_source"]}
@@ -209,6 +219,7 @@ def run_site(config: Config, site: Site, store: Store, as_of: str, run_id: int,
              clock: Clock) -> SiteOutcome:
     """Assess one site for one day, unless the same inputs were already reported."""
     previous = store.latest_report(site.id, as_of)
+    inputs: dict[str, Any] = {}
     try:
         inputs = site_inputs(config, site)
         fp = fingerprint(as_of, inputs)
@@ -221,14 +232,16 @@ def run_site(config: Config, site: Site, store: Store, as_of: str, run_id: int,
         assessment = assess_site(config, site, weather, totals, rows, pd.Timestamp(as_of))
     except Exception as exc:  # the service must not fall over on one site: record and go on
         reason = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
-        inputs = {"error": reason}
+        inputs = {**inputs, "error": reason}
         fp = fingerprint(as_of, inputs)
         if previous is not None and previous.fingerprint == fp:
             return SiteOutcome(site.id, "failed", previous.revision, STATUS_NONE, None, reason,
                                previous.paths)
         outcome = _issue(config, site, store, as_of, run_id, clock(),
-                         no_assessment(site, pd.Timestamp(as_of), reason), inputs, fp, previous)
+                         no_assessment(site, pd.Timestamp(as_of), reason), inputs, fp, previous,
+                         failure=reason)
         outcome.action = "failed"
+        outcome.reason = reason
         return outcome
     return _issue(config, site, store, as_of, run_id, clock(), assessment, inputs, fp, previous)
 
@@ -247,7 +260,9 @@ def run_daily(as_of: str | pd.Timestamp, config: Config, *, clock: Clock,
         own = store is None
         store = store or Store(config.store_url)
         try:
-            run_id = store.start_run(day, clock())
+            now = clock()
+            store.close_interrupted_runs(now)  # we hold the lock: a run still 'running' crashed
+            run_id = store.start_run(day, now)
             outcomes = [run_site(config, site, store, day, run_id, clock) for site in config.sites]
             status = "partial" if any(o.action == "failed" for o in outcomes) else "ok"
             errors = "; ".join(f"{o.site_id}: {o.reason}" for o in outcomes if o.action == "failed")

@@ -86,7 +86,8 @@ def missed_days(config: Config, site: Site, now: datetime, store: Store) -> list
         if issue <= local_now:
             days.append(day.isoformat())
         day += timedelta(days=1)
-    return days[-config.service.max_catch_up_days:]
+    n = config.service.max_catch_up_days
+    return days[-n:] if n > 0 else []
 
 
 def catch_up(config_path: str | None, now: datetime) -> list[RunResult]:

@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import json
 from dataclasses import dataclass
+from pathlib import Path
 from typing import Any
 
 from sqlalchemy import (
@@ -31,7 +32,8 @@ from sqlalchemy import (
     select,
     update,
 )
-from sqlalchemy.engine import Engine
+from sqlalchemy.engine import Engine, make_url
+from sqlalchemy.exc import SQLAlchemyError
 
 SCHEMA_VERSION = 1
 
@@ -113,8 +115,14 @@ class Store:
 
     def __init__(self, url: str) -> None:
         self.url = url
+        parsed = make_url(url)
+        if parsed.get_backend_name() == "sqlite" and parsed.database not in (None, "", ":memory:"):
+            Path(parsed.database).parent.mkdir(parents=True, exist_ok=True)
         self.engine: Engine = create_engine(url, future=True)
-        self._prepare()
+        try:
+            self._prepare()
+        except SQLAlchemyError as exc:
+            raise StoreError(f"{url}: cannot open the store ({str(exc).splitlines()[0]})") from None
 
     def _prepare(self) -> None:
         metadata.create_all(self.engine)
@@ -166,6 +174,14 @@ class Store:
         with self.engine.begin() as conn:
             conn.execute(update(runs_table).where(runs_table.c.id == run_id)
                          .values(ended_at=when, status=status, error=error))
+
+    def close_interrupted_runs(self, when: str) -> int:
+        """Mark runs left 'running' (their process died) as 'interrupted'; how many."""
+        with self.engine.begin() as conn:
+            res = conn.execute(update(runs_table).where(runs_table.c.status == "running")
+                               .values(ended_at=when, status="interrupted",
+                                       error="the run did not finish (the process stopped)"))
+            return int(res.rowcount or 0)
 
     def runs(self) -> list[dict[str, Any]]:
         with self.engine.connect() as conn:
