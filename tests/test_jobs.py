@@ -22,8 +22,6 @@ import re
 import shutil
 import socket
 import threading
-from collections.abc import Iterator
-from contextlib import contextmanager
 from pathlib import Path
 
 import pandas as pd
@@ -115,13 +113,9 @@ def corrupt(path: Path) -> None:
     path.write_bytes(b"\x00\xff\xfe garbage \x00\n" * 5)
 
 
-@contextmanager
-def opened(config) -> Iterator[Store]:
-    store = Store(config.store_url)
-    try:
-        yield store
-    finally:
-        store.close()
+def opened(config) -> Store:
+    """The configuration's store, to use in a with-statement."""
+    return Store(config.store_url)
 
 
 @pytest.fixture

@@ -22,8 +22,6 @@ import signal
 import subprocess
 import sys
 import time as clock_time
-from collections.abc import Iterator
-from contextlib import contextmanager
 from datetime import UTC, datetime, time, timedelta
 from pathlib import Path
 from zoneinfo import ZoneInfo
@@ -70,13 +68,9 @@ def make_config(tmp: Path, demo_site, extra: str = "") -> Path:
     return path
 
 
-@contextmanager
-def opened(config) -> Iterator[Store]:
-    store = Store(config.store_url)
-    try:
-        yield store
-    finally:
-        store.close()
+def opened(config) -> Store:
+    """The configuration's store, to use in a with-statement."""
+    return Store(config.store_url)
 
 
 def recorded(as_of: str, site_id: str = SITE) -> IssuedReport:

@@ -93,11 +93,8 @@ def missed_days(config: Config, site: Site, now: datetime, store: Store) -> list
 def catch_up(config_path: str | None, now: datetime) -> list[RunResult]:
     """Run, once each, the days missed while the service was down."""
     config = load_config(config_path)
-    store = Store(config.store_url)
-    try:
+    with Store(config.store_url) as store:
         plan = [(site.id, day) for site in config.sites for day in missed_days(config, site, now, store)]
-    finally:
-        store.close()
     results = []
     for site_id, day in plan:
         log.info("catching up %s for %s", day, site_id)
@@ -132,20 +129,16 @@ def add_listeners(scheduler: BaseScheduler, config: Config) -> None:
         detail = (f"scheduled for {event.scheduled_run_time}" if event.code == EVENT_JOB_MISSED
                   else f"{type(event.exception).__name__}: {event.exception}")
         log.error("%s %s: %s", site_id, what, detail)
-        store = Store(config.store_url)
-        try:
+        with Store(config.store_url) as store:
             run_id = store.start_run(str(event.scheduled_run_time.date()), when)
             store.end_run(run_id, when, what, f"{site_id}: {detail}")
-        finally:
-            store.close()
 
     scheduler.add_listener(listen, EVENT_JOB_ERROR | EVENT_JOB_MISSED | EVENT_JOB_EXECUTED)
 
 
 def status_lines(config: Config) -> list[str]:
     """Per site: last run, its status, last level, data freshness (from the store)."""
-    store = Store(config.store_url)
-    try:
+    with Store(config.store_url) as store:
         runs = store.runs()
         lines = []
         for site in config.sites:
@@ -164,8 +157,6 @@ def status_lines(config: Config) -> list[str]:
             lines.append(f"last run: {r['as_of']} started {r['started_at']}, status {r['status']}"
                          + (f" ({r['error']})" if r["error"] else ""))
         return lines
-    finally:
-        store.close()
 
 
 def _freshness(paths: list[str]) -> str:

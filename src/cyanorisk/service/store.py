@@ -138,6 +138,12 @@ class Store:
     def close(self) -> None:
         self.engine.dispose()
 
+    def __enter__(self) -> Store:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
     # files -------------------------------------------------------------------------------------
 
     def file_known(self, site_id: str, path: str, sha256: str) -> bool:
