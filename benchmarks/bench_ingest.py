@@ -49,7 +49,11 @@ DIALECT = WeatherDialect(
 
 
 def _load(name: str):
-    spec = importlib.util.spec_from_file_location(name, SHARED_BENCH / f"{name}.py")
+    path = SHARED_BENCH / f"{name}.py"
+    if not path.exists():
+        raise SystemExit(f"{path}: not found; the benchmarks need the shared bench folder beside "
+                         "the checkout (../shared/bench) or CYANORISK_SHARED_BENCH pointing at it")
+    spec = importlib.util.spec_from_file_location(name, path)
     module = importlib.util.module_from_spec(spec)
     spec.loader.exec_module(module)
     return module

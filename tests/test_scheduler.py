@@ -476,6 +476,6 @@ def test_status_after_a_failed_day(tmp_path, demo_site, capsys):
     lines = capsys.readouterr().out.splitlines()
     assert re.fullmatch(rf"Tallowbark Reservoir \(tallowbark\): last report for {RUN_DAY} \(revision 1\), "
                         r"status no assessment today, level none; run 1 partial at \S+; "
-                        r"weather n/a old, last sample n/a old at issue", lines[0])
+                        r"no weather, last sample n/a old at issue", lines[0])
     assert re.fullmatch(rf"last run: {RUN_DAY} started \S+, status partial \(tallowbark: .+\)", lines[1])
 

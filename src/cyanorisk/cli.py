@@ -236,7 +236,13 @@ def cmd_run(args: argparse.Namespace) -> int:
     """Run the daily job once for a date (as the scheduler would), recording it in the store."""
     from cyanorisk.service.jobs import run_daily, utc_clock
 
-    result = run_daily(args.as_of, _config(args), clock=utc_clock)
+    config = _config(args)
+    as_of = args.as_of
+    if as_of is None:  # today, in the first site's zone (the clock is read here, at the edge)
+        from cyanorisk.service.scheduler import _now, local_today
+
+        as_of = local_today(config.sites[0], _now())
+    result = run_daily(as_of, config, clock=utc_clock)
     for o in result.sites:
         print(f"{result.as_of} {o.site_id}: {o.action} (revision {o.revision}, "
               f"{o.level or o.status}); {o.reason}")
@@ -339,7 +345,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--as-of", metavar="DATE", help="for trials with --every: the date to assess")
     command("status", cmd_status, "show each site's last run, level and data freshness")
     p = command("run", cmd_run, "run the daily job once for a date and record it")
-    p.add_argument("--as-of", metavar="DATE", required=True, help="local date to assess")
+    p.add_argument("--as-of", metavar="DATE", help="local date to assess (default: today in the "
+                                                   "first site's time zone)")
     command("check", cmd_check, "validate the configuration and the layout of every input file")
     return parser
 

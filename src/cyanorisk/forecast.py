@@ -147,6 +147,12 @@ def assess(site: Site, models: Models, weather: pd.DataFrame, totals: pd.DataFra
         headline = "Insufficient data: " + "; ".join(reasons) + ". No forecast level is given."
     explanation = models.risk.explain(today, top=5)[0]
     card = models.card
+    quality = dict(quality or {})
+    window = card.get("training_window")
+    if window and str(day.date()) < window[1]:
+        quality["notes"] = list(quality.get("notes", [])) + [
+            f"this is a report for a past date: the model was trained on issue days up to "
+            f"{window[1]}, after it (the drivers and counts shown are those known on the day)"]
     content: dict[str, Any] = {
         "schema": "cyanorisk-report/1",
         "site": {"id": site.id, "name": site.name, "use": site.use, "timezone": tz},
@@ -183,7 +189,7 @@ def assess(site: Site, models: Models, weather: pd.DataFrame, totals: pd.DataFra
         "freshness": {"last_weather_utc": None if last_wx is None else last_wx.isoformat(),
                       "last_weather_local": _local(last_wx, tz),
                       "weather_age_days": wx_age_days, "lab_delay_days": lab_delay},
-        "quality": quality or {},
+        "quality": quality,
         "cautions": list(cautions(caution_rank, site.use)),
         "deferral": DEFERRAL.format(authority=site.authority),
         "model": {"cyanorisk_version": cyanorisk.__version__,
@@ -194,7 +200,8 @@ def assess(site: Site, models: Models, weather: pd.DataFrame, totals: pd.DataFra
     history = pd.DataFrame({"issue_date": pd.to_datetime(X["issue_date"])})
     for n in names:
         history[n] = probs[n].to_numpy()
-    for col in ("degree_days_20c_7d", "wind_run_km_1d", "calm_hours_3d", "rain_mm_1d"):
+    for col in ("water_temp_mean_c_7d", "degree_days_20c_7d", "wind_run_km_1d", "calm_hours_7d",
+                "rain_mm_1d"):
         history[col] = X[col].to_numpy() if col in X else np.nan
     return Assessment(content, known_counts(totals, issue, days[0], tz, lab_delay), history)
 

@@ -51,6 +51,19 @@ def _fmt_cells(v: float | None, censor: str | None = None) -> str:
     return f"{prefix}{v:,.0f} cells/mL"
 
 
+MEASURE_UNITS = {"cyano_cells_per_ml": "cyanobacteria cells/mL",
+                 "toxic_cells_per_ml": "toxin-producer cells/mL",
+                 "biovolume_mm3_per_l": "mm3/L biovolume", "chl_a_ug_per_l": "ug/L chlorophyll-a",
+                 "microcystin_ug_per_l": "ug/L microcystins"}
+
+
+def _strength(log_odds: float) -> str:
+    """A word for the size of a driver's push (log-odds in brackets for the record)."""
+    size = abs(log_odds)
+    word = "strong" if size >= 2 else "moderate" if size >= 0.7 else "slight"
+    return f"{word} ({log_odds:+.2f})"
+
+
 def figures(a: Assessment) -> dict[str, str]:
     """The report's plots as PNG data URIs."""
     c = a.content
@@ -67,7 +80,7 @@ def figures(a: Assessment) -> dict[str, str]:
     fig, ax = plt.subplots(figsize=(8, 2.5))
     probability_plot(a.history, names, c["forecast"]["warn_at"], ax=ax)
     out["probability"] = _png(fig)
-    fig, axes = plt.subplots(4, 1, figsize=(8, 5), sharex=True)
+    fig, axes = plt.subplots(5, 1, figsize=(8, 6), sharex=True)
     drivers_plot(a.history, axes)
     fig.suptitle("Weather drivers at each issue time", fontsize=9)
     out["drivers"] = _png(fig)
@@ -101,12 +114,19 @@ def render_html(a: Assessment) -> str:
     figs = figures(a)
     rows = "".join(
         f"<tr><td>{e(n)}</td><td>{f['probabilities'][n]:.0%}</td><td>{f['warn_at'][n]:.0%}</td>"
+        f"<td>{'yes' if f['probabilities'][n] >= f['warn_at'][n] else 'no'}</td>"
         f"<td>{f['climatology'][n]:.0%}</td><td>"
         + ("n/a" if f["persistence"][n] is None else f"{f['persistence'][n]:.0%}")
         + "</td></tr>" for n in c["scheme"]["levels"])
     drivers = "".join(
-        f"<tr><td>{e(driver_label(d['driver']))}</td><td>{d['value']:.3g}</td><td>{e(d['direction'])} the "
-        f"risk</td><td>{d['log_odds']:+.2f}</td></tr>" for d in f["drivers"])
+        f"<tr><td>{e(driver_label(d['driver']))}</td><td>{d['value']:.3g}"
+        f"{' (missing: typical value used)' if d.get('imputed') else ''}</td><td>{e(d['direction'])} "
+        f"the risk</td><td>{_strength(d['log_odds'])}</td></tr>" for d in f["drivers"])
+    level_values = "".join(
+        f"<li>{e(n)}: " + ", ".join(f"{'&ge;' if t['inclusive'] else '&gt;'} {t['value']:,g} "
+                                      f"{e(MEASURE_UNITS.get(t['measure'], t['measure']))}"
+                                      for t in ths) + "</li>"
+        for n, ths in zip(c["scheme"]["levels"], c["scheme"]["thresholds"], strict=True))
     quality = "".join(f"<li>{e(str(q))}</li>" for q in c["quality"].get("notes", [])) or \
         "<li>No data-quality notes.</li>"
     cautions = "".join(f"<li>{e(x)}</li>" for x in c["cautions"])
@@ -117,6 +137,29 @@ def render_html(a: Assessment) -> str:
     missing = (f"<p class='small'>Missing drivers (imputed): {e(', '.join(f['missing_drivers']))}</p>"
                if f["missing_drivers"] else "")
     m = c["model"]
+    if assessed:
+        forecast_sections = f"""<section id="probabilities"><h2>Probability of reaching each level
+within {f['horizon_days']} days</h2>
+<table><tr><th>Level</th><th>Forecast</th><th>Warn at</th><th>Warning raised</th>
+<th>Climatology</th><th>Persistence</th></tr>{rows}</table>
+<p class="small">Climatology: how often the level was reached at this time of year in the
+record. Persistence: the last observed level stays. Warning thresholds: {e(f['thresholds_source'])}.
+Levels: </p><ul class="small">{level_values}</ul></section>
+
+<section id="expected-count"><h2>Expected count at {f['horizon_days']} days</h2>
+<p>{f['expected_cells_per_ml']:,.0f} cells/mL (80% interval {lo:,.0f} to {hi:,.0f}).</p></section>
+
+<section id="drivers"><h2>What drives this forecast</h2>
+<p class="small">Each driver's push on today's forecast compared with an average day of the
+training record: a driver below its usual value can lower the risk even when it favours blooms
+in general. Drivers overlap (warm water and degree-days rise together), so read them together.</p>
+<table><tr><th>Driver</th><th>Value today</th><th>Effect</th><th>Strength</th></tr>{drivers}</table>
+{missing}</section>"""
+    else:
+        forecast_sections = """<section id="probabilities"><h2>Forecast</h2>
+<p><strong>Not shown: the data are insufficient</strong> (see the headline). Probabilities,
+expected counts and drivers computed from stale or missing data would mislead.</p></section>
+<section id="expected-count"></section><section id="drivers"></section>"""
     return f"""<!DOCTYPE html>
 <html lang="en"><head><meta charset="utf-8">
 <title>{e(c['site']['name'])}: bloom risk {e(c['as_of'])}</title>
@@ -135,22 +178,13 @@ def render_html(a: Assessment) -> str:
 <tr><th>Lab delay assumed</th><td>{fr['lab_delay_days']:g} days when no reported date</td></tr>
 </table></section>
 
-<section id="probabilities"><h2>Probability of reaching each level within {f['horizon_days']} days</h2>
-<table><tr><th>Level</th><th>Forecast</th><th>Warn at</th><th>Climatology</th><th>Persistence</th></tr>
-{rows}</table>
-<p class="small">Warning thresholds: {e(f['thresholds_source'])}.</p></section>
-
-<section id="expected-count"><h2>Expected count at {f['horizon_days']} days</h2>
-<p>{f['expected_cells_per_ml']:,.0f} cells/mL (80% interval {lo:,.0f} to {hi:,.0f}).</p></section>
-
-<section id="drivers"><h2>What drives this forecast</h2>
-<table><tr><th>Driver</th><th>Value</th><th>Effect</th><th>Log-odds</th></tr>{drivers}</table>
-{missing}</section>
+{forecast_sections}
 
 <section id="plots"><h2>Plots</h2>
 <img alt="Cell counts of the last 120 days on a log scale with the alert-level lines" src="{figs['counts']}">
 <img alt="Probability of reaching each level, last 120 days" src="{figs['probability']}">
-<img alt="Weather drivers: degree-days, wind run, calm hours and rain" src="{figs['drivers']}">
+<img alt="Weather drivers: water temperature, degree-days, wind run, calm hours, rain"
+ src="{figs['drivers']}">
 </section>
 
 <section id="quality"><h2>Data quality</h2><ul>{quality}</ul></section>
@@ -180,6 +214,10 @@ def render_text(a: Assessment) -> str:
     if c["status"] == STATUS_NONE:
         return "\n".join(lines + ["Cautions:"] + [f"- {x}" for x in c["cautions"]]
                           + ["", c["deferral"]]) + "\n"
+    if c["status"] != STATUS_ASSESSED:
+        lines.append("No probabilities are given: the data are insufficient.")
+        lines += ["", "Cautions:"] + [f"- {x}" for x in c["cautions"]] + ["", c["deferral"]]
+        return "\n".join(lines) + "\n"
     if o["last_sampled_at"]:
         lines.append(f"Last sample: {o['last_sampled_at']}, "
                      f"{_fmt_cells(o['cyano_cells_per_ml'], o['censor'])} ({o['level']}), "

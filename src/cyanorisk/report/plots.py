@@ -36,7 +36,8 @@ def counts_plot(counts: pd.DataFrame, levels: list[tuple[str, float]], tz: str, 
     ax.set_yscale("log")
     ax.set_ylabel("cyanobacteria [cells/mL]")
     ax.set_title("Cell counts known at issue time, last 120 days", fontsize=9)
-    ax.legend(fontsize=7, loc="upper left", bbox_to_anchor=(0, 0.92))
+    if ax.get_legend_handles_labels()[0]:
+        ax.legend(fontsize=7, loc="upper left", bbox_to_anchor=(0, 0.92))
     ax.xaxis.set_major_formatter(mdates.DateFormatter("%d %b"))
     return ax
 
@@ -57,9 +58,10 @@ def probability_plot(history: pd.DataFrame, names: list[str], warn_at: dict[str,
 
 def drivers_plot(history: pd.DataFrame, axes=None):
     """Weather drivers: degree-days, wind run, calm hours, rain (one panel each)."""
-    panels = [("degree_days_20c_7d", "degree-days above 20 degC, 7 d"),
+    panels = [("water_temp_mean_c_7d", "water temperature, 7-day mean [degC]"),
+              ("degree_days_20c_7d", "degree-days above 20 degC, 7 d"),
               ("wind_run_km_1d", "wind run [km/day]"),
-              ("calm_hours_3d", "calm hours, 3 d"), ("rain_mm_1d", "rain [mm/day]")]
+              ("calm_hours_7d", "calm hours, 7 d"), ("rain_mm_1d", "rain [mm/day]")]
     if axes is None:
         _, axes = plt.subplots(len(panels), 1, sharex=True)
     for ax, (col, label) in zip(np.ravel(axes), panels, strict=True):

@@ -168,5 +168,10 @@ def _freshness(paths: list[str]) -> str:
     c = json.loads(Path(doc).read_text(encoding="utf-8"))
     wx = c["freshness"]["weather_age_days"]
     age = c["observed"]["age_days"]
-    return (f"weather {'n/a' if wx is None else f'{wx * 24:.0f} h'} old, last sample "
-            f"{'n/a' if age is None else f'{age:.0f} days'} old at issue")
+    if wx is None:
+        weather = "no weather"
+    elif wx < 2:
+        weather = f"weather {wx * 24:.0f} h old"
+    else:
+        weather = f"weather {wx:.0f} days old"
+    return f"{weather}, last sample {'n/a' if age is None else f'{age:.0f} days'} old at issue"
