@@ -10,7 +10,6 @@ Usage: python benchmarks/bench_features.py [--years 20] [--repeat 5] [--file PAT
 
 from __future__ import annotations
 
-import argparse
 import sys
 import tempfile
 from pathlib import Path
@@ -18,21 +17,14 @@ from pathlib import Path
 import pandas as pd
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-from bench_ingest import _load, best_of, ingest
+from bench_ingest import best_of, ingest, log_arguments, messy_log
 from cyanorisk.features import FeatureBuilder, FeatureSettings
 
 
 def main() -> None:
-    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--years", type=int, default=20)
-    parser.add_argument("--repeat", type=int, default=5)
-    parser.add_argument("--file", type=Path)
-    args = parser.parse_args()
+    args = log_arguments(__doc__)
     with tempfile.TemporaryDirectory() as tmp:
-        path = args.file
-        if path is None:
-            path = Path(tmp) / "messy.tsv"
-            _load("make_messy_weather").make(args.years).to_csv(path, sep="\t", index=False)
+        path = messy_log(args, tmp)
         weather = ingest(path)
         builder = FeatureBuilder(FeatureSettings(anemometer_height_m=10.0), "Australia/Brisbane")
         drivers = builder.transform(weather)

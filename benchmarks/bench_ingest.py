@@ -98,17 +98,28 @@ def peak_growth_mb(path: Path) -> float:
     return float(out.stdout.strip())
 
 
-def main() -> None:
-    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+def log_arguments(doc: str) -> argparse.Namespace:
+    """The command line shared by the benchmarks that run on a messy station log."""
+    parser = argparse.ArgumentParser(description=doc.splitlines()[0])
     parser.add_argument("--years", type=int, default=20)
     parser.add_argument("--repeat", type=int, default=5)
     parser.add_argument("--file", type=Path)
-    args = parser.parse_args()
+    return parser.parse_args()
+
+
+def messy_log(args: argparse.Namespace, folder: str) -> Path:
+    """``--file``, or a log of ``--years`` years written by the shared generator into ``folder``."""
+    if args.file is not None:
+        return args.file
+    path = Path(folder) / "messy.tsv"
+    _load("make_messy_weather").make(args.years).to_csv(path, sep="\t", index=False)
+    return path
+
+
+def main() -> None:
+    args = log_arguments(__doc__)
     with tempfile.TemporaryDirectory() as tmp:
-        path = args.file
-        if path is None:
-            path = Path(tmp) / "messy.tsv"
-            _load("make_messy_weather").make(args.years).to_csv(path, sep="\t", index=False)
+        path = messy_log(args, tmp)
         naive = _load("naive_pipeline")
         size_mb = path.stat().st_size / 1e6
         rows = len(ingest(path))  # warm-up, and the row count
