@@ -288,3 +288,19 @@ def test_real_program_exits_1_on_a_bad_row_with_stop_policy(tmp_path):
     message = one_sentence(done.stderr)
     assert f"line {BAD_LINE}, column '{BAD_COLUMN}'" in message
     assert not (tmp_path / "work").exists()
+
+
+def test_check_reads_the_lab_sheets_too(demo_site, tmp_path, capsys):
+    config = demo_site.write_config(tmp_path / "site.toml")
+    assert main(["check", "--config", str(config)]) == 0
+    out = capsys.readouterr().out
+    assert "lab file(s), layout 'merrin_lab' (wide)" in out
+    assert "tallowbark_lab.csv: 14 column(s)" in out
+    # a layout naming a column the sheets lack is refused, naming file, header line and column
+    text = config.read_text(encoding="utf-8").replace('sample_id_column = "Sample"',
+                                                      'sample_id_column = "Sample No"')
+    config.write_text(text, encoding="utf-8")
+    assert main(["check", "--config", str(config)]) == 1
+    err = capsys.readouterr().err.strip()
+    assert re.fullmatch(r"cyanorisk: \S+tallowbark_lab\S*\.csv, line 2, column 'Sample No': the "
+                        r"layout names column 'Sample No' but the header has .+", err)

@@ -252,9 +252,11 @@ def cmd_run(args: argparse.Namespace) -> int:
 
 
 def cmd_check(args: argparse.Namespace) -> int:
-    """Validate the configuration and every weather file's layout, without ingesting."""
+    """Validate the configuration and the layout of every weather and lab file, without
+    ingesting."""
     from cyanorisk.ingest.dialects import column_plan, sniff_layout
     from cyanorisk.ingest.lines import read_text
+    from cyanorisk.ingest.samples import sniff_sheet
 
     config = _config(args)
     for site in config.sites:
@@ -267,6 +269,14 @@ def cmd_check(args: argparse.Namespace) -> int:
             notes = "; ".join(layout.assumptions) or "layout as declared"
             print(f"  {path.name}: {len(plan)} variable column(s)"
                   + (f", ignored {', '.join(ignored)}" if ignored else "") + f" ({notes})")
+        if site.samples is not None:
+            layout = config.layouts[site.samples.layout]
+            print(f"  {len(site.samples.files)} lab file(s), layout '{site.samples.layout}' "
+                  f"({layout.shape})")
+            for path in site.samples.files:
+                table = sniff_sheet(read_text(path, layout.encoding), layout)
+                notes = "; ".join(table.assumptions) or "layout as declared"
+                print(f"  {path.name}: {len(table.header)} column(s) ({notes})")
     print(f"{config.path}: configuration is valid")
     return 0
 

@@ -24,7 +24,7 @@ import numpy as np
 import pandas as pd
 
 from cyanorisk.ingest.counts import CENSOR_ABOVE, CENSOR_BELOW, EXACT, parse_count
-from cyanorisk.ingest.dialects import DATE_ORDERS, sniff_table
+from cyanorisk.ingest.dialects import DATE_ORDERS, Table, sniff_table
 from cyanorisk.ingest.lines import Parsing, TextFile, read_table, read_text
 from cyanorisk.ingest.quality import IngestError, Ledger, RowAccount
 from cyanorisk.ingest.stamps import distinct, localize, parse_dates, parse_times
@@ -179,12 +179,8 @@ def _raw_rows(data: pd.DataFrame) -> set[tuple[str, int]]:
 def _read_file(path: Path, layout: SampleLayout, timezone: str, site_id: str | None, bad_rows: str,
                ledger: Ledger) -> tuple[pd.DataFrame, int, list[str]]:
     text = read_text(path, layout.encoding)
-    table = sniff_table(text, layout.separator, layout.skip_lines, layout.decimal)
+    table = sniff_sheet(text, layout)
     header = table.header
-    for name in sorted(layout.named_columns()):
-        if name not in header:
-            raise IngestError(path, f"the layout names column '{name}' but the header has "
-                                    f"{', '.join(header)}", line=table.skip_lines + 1, column=name)
     raw = read_table(text, table.skip_lines, Parsing(table.separator, table.decimal, (),
                                                      string_columns=tuple(header)))
     cols = {h: _strings(raw.columns[h]) for h in header}
@@ -235,6 +231,24 @@ def _read_file(path: Path, layout: SampleLayout, timezone: str, site_id: str | N
         assumed = said.pop("time_assumed")[r]
         records.loc[assumed, "flag"] = _join_flag(records.loc[assumed, "flag"], "time_assumed")
     return records[RECORD_COLUMNS + ["_row"]], n + len(raw.bad_lines), list(said.values())
+
+
+def sniff_sheet(text: TextFile, layout: SampleLayout) -> Table:
+    """Separator, preamble and header of a lab sheet; every column the layout names must be
+    in the header.
+
+    Raises
+    ------
+    IngestError
+        Naming the file, the header line and the missing column.
+    """
+    table = sniff_table(text, layout.separator, layout.skip_lines, layout.decimal)
+    for name in sorted(layout.named_columns()):
+        if name not in table.header:
+            raise IngestError(text.path, f"the layout names column '{name}' but the header has "
+                                         f"{', '.join(table.header)}", line=table.skip_lines + 1,
+                              column=name)
+    return table
 
 
 def _strings(col) -> np.ndarray:
