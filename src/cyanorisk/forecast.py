@@ -20,7 +20,7 @@ import cyanorisk
 from cyanorisk.align import known_from, training_table
 from cyanorisk.config import Site
 from cyanorisk.features import FeatureBuilder, issue_instants
-from cyanorisk.levels import DEFERRAL, cautions, level_name
+from cyanorisk.levels import DEFERRAL, Scheme, cautions, level_name
 from cyanorisk.model import ClimatologyModel, CountModel, PersistenceModel, RiskModel, prepare
 
 HISTORY_DAYS = 120
@@ -67,6 +67,14 @@ def _local(ts: pd.Timestamp | None, tz: str) -> str | None:
     if ts is None or pd.isna(ts):
         return None
     return pd.Timestamp(ts).tz_convert(tz).strftime("%Y-%m-%d %H:%M %Z")
+
+
+def scheme_content(scheme: Scheme) -> dict[str, Any]:
+    """The alert-level scheme as the report's JSON document carries it."""
+    return {"key": scheme.key, "title": scheme.title, "source": scheme.source,
+            "year": scheme.year, "levels": scheme.names,
+            "thresholds": [[{"measure": t.measure, "value": t.value, "inclusive": t.inclusive,
+                             "status": t.status} for t in lvl.thresholds] for lvl in scheme.levels]}
 
 
 def last_weather_stamp(weather: pd.DataFrame, before: pd.Timestamp) -> pd.Timestamp | None:
@@ -159,11 +167,7 @@ def assess(site: Site, models: Models, weather: pd.DataFrame, totals: pd.DataFra
         "as_of": str(day.date()), "issue_time_utc": issue.isoformat(),
         "issue_time_local": _local(issue, tz),
         "status": status, "status_reasons": reasons, "headline": headline,
-        "scheme": {"key": scheme.key, "title": scheme.title, "source": scheme.source,
-                   "year": scheme.year, "levels": names,
-                   "thresholds": [[{"measure": t.measure, "value": t.value, "inclusive": t.inclusive,
-                                    "status": t.status} for t in lvl.thresholds]
-                                  for lvl in scheme.levels]},
+        "scheme": scheme_content(scheme),
         "forecast": {
             "level_rank": rank, "level": level_name(scheme, rank) if rank is not None else None,
             "horizon_days": models.risk.horizon_days,
@@ -221,7 +225,6 @@ def no_assessment(site: Site, as_of: pd.Timestamp, reason: str) -> Assessment:
     """The report of a day on which the site could not be assessed (a corrupt file, a missing
     model): it says so and why, rather than saying nothing or showing a level."""
     scheme = site.alert_scheme()
-    names = scheme.names
     day = pd.Timestamp(as_of).normalize().tz_localize(None)
     issue = issue_instants(pd.DatetimeIndex([day]), site.timezone, site.drivers.issue_time)[0]
     content: dict[str, Any] = {
@@ -231,11 +234,7 @@ def no_assessment(site: Site, as_of: pd.Timestamp, reason: str) -> Assessment:
         "issue_time_local": _local(issue, site.timezone),
         "status": STATUS_NONE, "status_reasons": [reason],
         "headline": f"No assessment today: {reason}",
-        "scheme": {"key": scheme.key, "title": scheme.title, "source": scheme.source,
-                   "year": scheme.year, "levels": names,
-                   "thresholds": [[{"measure": t.measure, "value": t.value, "inclusive": t.inclusive,
-                                    "status": t.status} for t in lvl.thresholds]
-                                  for lvl in scheme.levels]},
+        "scheme": scheme_content(scheme),
         "forecast": {"level_rank": None, "level": None, "horizon_days": site.model.horizon_days,
                      "probabilities": {}, "warn_at": {}, "thresholds_source": "not applied",
                      "climatology": {}, "persistence": {}, "expected_cells_per_ml": None,

@@ -27,7 +27,7 @@ from cyanorisk.ingest.counts import CENSOR_ABOVE, CENSOR_BELOW, EXACT, parse_cou
 from cyanorisk.ingest.dialects import DATE_ORDERS, Table, sniff_table
 from cyanorisk.ingest.lines import Parsing, TextFile, read_table, read_text
 from cyanorisk.ingest.quality import IngestError, Ledger, RowAccount
-from cyanorisk.ingest.stamps import distinct, localize, parse_dates, parse_times
+from cyanorisk.ingest.stamps import distinct, localize, parse_dates, parse_times, to_ns
 
 CELLS_PER_L_IN_ML = 1000.0
 """Cells per litre per cell per millilitre: 1 L = 1000 mL (SI)."""
@@ -294,9 +294,7 @@ def _sample_times(cols: dict, layout: SampleLayout, timezone: str, n: int,
         assumed = np.ones(n, dtype=bool)
         tod = np.full(n, parse_times([layout.default_sample_time])[0])
     said["time_assumed"] = assumed
-    naive = np.where(np.isnan(days) | (tod < 0), np.iinfo(np.int64).min,
-                     np.nan_to_num(days).astype(np.int64) * 86_400_000_000_000 + np.maximum(tod, 0))
-    utc, _, nonexistent = localize(naive, timezone)
+    utc, _, nonexistent = localize(to_ns(days, tod), timezone)
     for i in np.flatnonzero(nonexistent):
         problems.append((int(i), layout.sampled_time_column or layout.sampled_date_column,
                          "nonexistent_local_time", f"this local time does not exist in {timezone}"))
@@ -309,9 +307,8 @@ def _sample_times(cols: dict, layout: SampleLayout, timezone: str, n: int,
         for i in np.flatnonzero(np.isnan(r_days) & ~blank):
             problems.append((int(i), layout.reported_date_column, "bad_date",
                              f"'{r_text[i]}' is not a date ({parsed.order})"))
-        r_naive = np.where(np.isnan(r_days), np.iinfo(np.int64).min,
-                           np.nan_to_num(r_days).astype(np.int64) * 86_400_000_000_000)
-        r_utc, _, _ = localize(r_naive, timezone)  # a result counts from the start of its day
+        midnight = np.zeros(n, dtype=np.int64)  # a result counts from the start of its day
+        r_utc, _, _ = localize(to_ns(r_days, midnight), timezone)
         reported = pd.DatetimeIndex(r_utc.view("datetime64[ns]")).tz_localize("UTC")
     return sampled, reported, said
 

@@ -144,8 +144,9 @@ def parse_timestamps(values: pa.Array, order: str | None,
         date = pc.fill_null(pc.struct_field(parts, "date"), "")
         time = pc.fill_null(pc.struct_field(parts, "time"), "")
         time = pc.if_else(pc.equal(time, ""), "00:00", time)
-        combined, order, note = combine_date_time(date, time, order, coerce_year)
-        out[rest] = combined
+        parsed = parse_date_time(date, time, order, coerce_year)
+        order, note = parsed.order, parsed.note
+        out[rest] = parsed.ns()
     return out, aware, order or "ymd", note
 
 
@@ -175,12 +176,31 @@ def _ns(t: pd.Series | pd.DatetimeIndex) -> np.ndarray:
     return t.as_unit("ns").asi8.copy()
 
 
-def combine_date_time(date: pa.Array, time: pa.Array | None, order: str | None,
-                      coerce_year: int | None = None) -> tuple[np.ndarray, str, str | None]:
-    """Nanoseconds since the epoch (naive) from a date column and an optional time column.
+@dataclass
+class DateTimeParse:
+    """A date column and an optional time column, parsed row by row."""
 
-    Returns ``NAT`` where the date or the time is invalid; see :func:`date_time_errors` for which.
-    """
+    days: np.ndarray
+    """Days since 1970-01-01 (NaN where the date is not one)."""
+    tod: np.ndarray
+    """Nanoseconds after midnight (-1 where the time is not one; 0 without a time column)."""
+    order: str
+    note: str | None
+
+    def ns(self) -> np.ndarray:
+        """Naive nanoseconds since the epoch; ``NAT`` where the date or the time is bad."""
+        return to_ns(self.days, self.tod)
+
+
+def to_ns(days: np.ndarray, tod: np.ndarray) -> np.ndarray:
+    """Naive nanoseconds since the epoch from days (NaN: bad) and time of day (negative: bad)."""
+    bad = np.isnan(days) | (tod < 0)
+    return np.where(bad, NAT, np.nan_to_num(days).astype(np.int64) * NS_PER_DAY + tod)
+
+
+def parse_date_time(date: pa.Array, time: pa.Array | None, order: str | None,
+                    coerce_year: int | None = None) -> DateTimeParse:
+    """Parse a date column and an optional time column through their distinct values."""
     d_codes, d_uniques = distinct(date)
     parsed = parse_dates(d_uniques, order, coerce_year)
     days = parsed.days[d_codes]
@@ -189,9 +209,7 @@ def combine_date_time(date: pa.Array, time: pa.Array | None, order: str | None,
     else:
         t_codes, t_uniques = distinct(time)
         tod = parse_times(t_uniques)[t_codes]
-    bad = np.isnan(days) | (tod < 0)
-    out = np.where(bad, NAT, np.nan_to_num(days).astype(np.int64) * NS_PER_DAY + tod)
-    return out, parsed.order, parsed.note
+    return DateTimeParse(days, tod, parsed.order, parsed.note)
 
 
 def runs_newest_first(naive_ns: np.ndarray) -> bool:

@@ -38,8 +38,7 @@ from cyanorisk.ingest.stamps import (
     NAT,
     distinct,
     localize,
-    parse_dates,
-    parse_times,
+    parse_date_time,
     parse_timestamps,
 )
 from cyanorisk.units import to_canonical
@@ -314,24 +313,17 @@ def _parse_stamps(raw: RawTable, d: WeatherDialect,
                      "31/01/2024 09:30")
         return t, aware, [note] if note else notes
     date_col = raw.columns[d.date_column]
-    codes, uniques = distinct(date_col)
-    parsed = parse_dates(uniques, d.date_order, d.coerce_year)
+    time_col = raw.columns[d.time_column] if d.time_column else None
+    parsed = parse_date_time(date_col, time_col, d.date_order, d.coerce_year)
     if parsed.note:
         notes.append(parsed.note)
-    days = parsed.days[codes]
     form = {"dmy": "DD/MM/YYYY", "mdy": "MM/DD/YYYY", "ymd": "YYYY-MM-DD"}[parsed.order]
-    problems.add(np.isnan(days), d.date_column, "bad_date", date_col,
+    problems.add(np.isnan(parsed.days), d.date_column, "bad_date", date_col,
                  f"'{{raw}}' is not a date in the form {form}")
-    tod = np.zeros(n, dtype=np.int64)
-    if d.time_column:
-        time_col = raw.columns[d.time_column]
-        t_codes, t_uniques = distinct(time_col)
-        tod = parse_times(t_uniques)[t_codes]
-        problems.add(tod < 0, d.time_column, "bad_time", time_col,
+    if time_col is not None:
+        problems.add(parsed.tod < 0, d.time_column, "bad_time", time_col,
                      "'{raw}' is not a time of day; expected HH:MM from 00:00 to 24:00")
-    bad = np.isnan(days) | (tod < 0)
-    t = np.where(bad, NAT, np.nan_to_num(days).astype(np.int64) * 86_400_000_000_000 + tod)
-    return t, np.zeros(n, dtype=bool), notes
+    return parsed.ns(), np.zeros(n, dtype=bool), notes
 
 
 def _to_utc(t: np.ndarray, aware: np.ndarray, d: WeatherDialect, timezone: str, step_ns: int,
