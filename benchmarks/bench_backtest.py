@@ -25,8 +25,9 @@ from bench_ingest import best_of
 from cyanorisk.backtest import walk_forward
 from cyanorisk.config import embedded_demo_text, load_config
 from cyanorisk.demo import write_demo
-from cyanorisk.ingest.sites import ingest_site_samples, ingest_site_weather
-from cyanorisk.training import season_of, site_training_table
+from cyanorisk.pipeline import SitePipeline
+from cyanorisk.spec import Thresholds
+from cyanorisk.training import season_of
 
 
 def main() -> None:
@@ -40,20 +41,20 @@ def main() -> None:
                                encoding="utf-8")
         files = write_demo(root / "demo_data", 20, 20261202)
         config = load_config(config_path)
-        site = config.sites[0]
-        weather = ingest_site_weather(config, site)
-        samples = ingest_site_samples(config, site, weather.meta)
-        table = site_training_table(site, weather.data, samples.totals)
-        seasons = sorted(set(season_of(table["issue_date"], site.model.season_start_month).tolist()))
+        pipeline = SitePipeline.of(config, config.sites[0])
+        spec = pipeline.spec
+        totals = pipeline.clean().totals
+        table = pipeline.training_table()
+        seasons = sorted(set(season_of(table["issue_date"], spec.season_start_month).tolist()))
         seasons = seasons[1:][-20:]
-        warn_at = {n: 0.5 for n in site.alert_scheme().names}
+        thresholds = Thresholds.default(spec.levels)
         parse_s = best_of(lambda: [pd.read_csv(p, sep="\t", skiprows=1) for p in files.weather],
                           args.repeat + 2)
         timings = {}
         for n in (5, 10, 20):
             chosen = seasons[-n:]
-            timings[n] = best_of(lambda c=chosen: walk_forward(site, table, samples.totals, c,
-                                                                warn_at), args.repeat)
+            timings[n] = best_of(lambda c=chosen: walk_forward(spec, table, totals, c, thresholds),
+                                 args.repeat)
     print(f"{len(table):,} issue days, seasons {seasons[0]}-{seasons[-1]}")
     print(f"(a) pandas.read_csv of the weather files   {parse_s * 1000:8.1f} ms")
     for n, s in timings.items():

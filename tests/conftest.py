@@ -2,15 +2,17 @@
 
 ``demo_site``: the fictitious demo reservoir (cyanorisk.demo) built once per test session with a
 smaller record than ``cyanorisk demo`` makes (8 years instead of 12, the seed of
-src/cyanorisk/data/demo.toml), ingested with the demo configuration re-rooted in a temporary
-folder (as tests/test_cli.py does), its training table built and its models fitted and saved under
-the temporary models/ folder. Tests must not change what it holds; tests that write reports or
-models point a copy of the configuration elsewhere with :meth:`DemoSite.write_config`.
+src/cyanorisk/data/demo.toml), ingested by its site pipeline with the demo configuration
+re-rooted in a temporary folder (as tests/test_cli.py does), its training table built and its
+models fitted and saved under the temporary models/ folder. Tests must not change what it holds;
+tests that write reports or models point a copy of the configuration elsewhere with
+:meth:`DemoSite.write_config` (a copy that keeps ``data_dir`` reuses the session's clean tables).
 """
 
 from __future__ import annotations
 
 import re
+import shutil
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -19,9 +21,9 @@ import pytest
 
 from cyanorisk.config import Config, Site, embedded_demo_text, load_config
 from cyanorisk.demo import write_demo
-from cyanorisk.ingest.sites import SiteSamples, SiteWeather, ingest_site_samples, ingest_site_weather
-from cyanorisk.reporting import save_models
-from cyanorisk.training import FittedSite, fit_site, site_training_table
+from cyanorisk.model import SiteModels
+from cyanorisk.pipeline import CleanData, SitePipeline
+from cyanorisk.spec import SiteSpec
 
 DEMO_YEARS = 8
 DEMO_SEED = 20261202
@@ -36,13 +38,33 @@ class DemoSite:
     config_path: Path
     config: Config
     site: Site
-    weather: SiteWeather
-    samples: SiteSamples
+    pipeline: SitePipeline
+    clean: CleanData
     table: pd.DataFrame
-    """Training table (site_training_table)."""
-    fitted: FittedSite
+    """Training table (cyanorisk.training.training_table)."""
+    models: SiteModels
     """Models fitted without cross-validation; saved at ``model_file``."""
     model_file: Path
+
+    @property
+    def spec(self) -> SiteSpec:
+        return self.site.spec
+
+    @property
+    def weather(self) -> pd.DataFrame:
+        """The clean weather series."""
+        return self.clean.weather
+
+    @property
+    def totals(self) -> pd.DataFrame:
+        """The per-sample totals."""
+        return self.clean.totals
+
+    def seed(self, data_dir: Path) -> None:
+        """Copy the session's clean tables of the demo site into another data folder, so that a
+        configuration reading the same raw files from there reuses them instead of ingesting."""
+        shutil.copytree(self.config.data_dir / self.site.id, Path(data_dir) / self.site.id,
+                        ignore=shutil.ignore_patterns(".*"))
 
     def write_config(self, path: Path, **dirs: Path) -> Path:
         """A copy of the demo configuration at ``path`` that reads the demo's data, with
@@ -68,9 +90,8 @@ def demo_site(tmp_path_factory) -> DemoSite:
     write_demo(config.demo.out_dir, DEMO_YEARS, DEMO_SEED)
     config = load_config(config_path)
     site = config.sites[0]
-    weather = ingest_site_weather(config, site)
-    samples = ingest_site_samples(config, site, weather.meta)
-    table = site_training_table(site, weather.data, samples.totals)
-    fitted = fit_site(site, table, cross_validation=False)
-    model_file = save_models(config, fitted)
-    return DemoSite(root, config_path, config, site, weather, samples, table, fitted, model_file)
+    pipeline = SitePipeline.of(config, site)
+    clean = pipeline.clean()
+    table = pipeline.training_table()
+    models, model_file = pipeline.train(table, cross_validation=False)
+    return DemoSite(root, config_path, config, site, pipeline, clean, table, models, model_file)

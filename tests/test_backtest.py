@@ -27,9 +27,9 @@ from cyanorisk.backtest import (
     walk_forward,
 )
 from cyanorisk.cli import main
-from cyanorisk.config import Site
 from cyanorisk.model import prepare
-from cyanorisk.training import fit_models, season_of, site_training_table
+from cyanorisk.spec import SiteSpec, Thresholds
+from cyanorisk.training import fit_models, season_of, training_table
 
 DEMO_SEASONS = list(range(2016, 2025))
 """Season start years of the 8-year demo record (14 January 2017 to 14 January 2025 local)."""
@@ -42,7 +42,7 @@ class Demo:
 
     site_data: object
     available: list[int]
-    warn_at: dict[str, float]
+    warn_at: Thresholds
 
     def __getattr__(self, name: str):
         return getattr(self.site_data, name)
@@ -54,19 +54,19 @@ class Demo:
 
 @pytest.fixture(scope="module")
 def demo(demo_site) -> Demo:
-    site, table = demo_site.site, demo_site.table
-    available = sorted(set(season_of(table["issue_date"], site.model.season_start_month).tolist()))
-    return Demo(demo_site, available, {name: 0.5 for name in site.alert_scheme().names})
+    site, table = demo_site.spec, demo_site.table
+    available = sorted(set(season_of(table["issue_date"], site.season_start_month).tolist()))
+    return Demo(demo_site, available, Thresholds.default(site.levels))
 
 
 @pytest.fixture(scope="module")
 def result(demo) -> BacktestResult:
     """The backtest of every season but the first (the default of ``cyanorisk backtest``)."""
     seasons = parse_seasons(None, demo.available)
-    return walk_forward(demo.site, demo.table, demo.samples.totals, seasons, demo.warn_at)
+    return walk_forward(demo.spec, demo.table, demo.totals, seasons, demo.warn_at)
 
 
-def local_midnight_utc(site: Site, year: int, month: int) -> pd.Timestamp:
+def local_midnight_utc(site: SiteSpec, year: int, month: int) -> pd.Timestamp:
     """The start of the first day of a month, local time of the site, in UTC."""
     return pd.Timestamp(year=year, month=month, day=1).tz_localize(site.timezone).tz_convert("UTC")
 
@@ -74,12 +74,12 @@ def local_midnight_utc(site: Site, year: int, month: int) -> pd.Timestamp:
 def known_by(demo: Demo, cut: pd.Timestamp) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Weather and lab totals as they existed at the UTC instant ``cut``: weather before it, and
     the samples taken before it whose results were known before it."""
-    totals = demo.samples.totals
-    lab_delay = demo.site.samples.lab_delay_days
-    known = known_from(totals, lab_delay, demo.site.timezone)
-    weather = demo.weather.data[demo.weather.data.index < cut]
+    totals = demo.totals
+    lab_delay = demo.spec.lab_delay_days
+    known = known_from(totals, lab_delay, demo.spec.timezone)
+    weather = demo.weather[demo.weather.index < cut]
     kept = totals[((totals["sampled_at"] < cut) & (known < cut)).to_numpy()]
-    assert len(weather) < len(demo.weather.data) and len(kept) < len(totals)
+    assert len(weather) < len(demo.weather) and len(kept) < len(totals)
     return weather, kept
 
 
@@ -131,9 +131,9 @@ def test_seasons_that_are_not_years_are_refused():
 def test_forecasts_of_a_season_do_not_change_without_the_data_after_it(demo, result, season):
     # The record cut at the end of the season (1 July of the next year, local): weather and lab
     # results as they stood then; the training table rebuilt from them.
-    weather, totals = known_by(demo, local_midnight_utc(demo.site, season + 1, 7))
-    table = site_training_table(demo.site, weather, totals)
-    cut = walk_forward(demo.site, table, totals, [season], demo.warn_at)
+    weather, totals = known_by(demo, local_midnight_utc(demo.spec, season + 1, 7))
+    table = training_table(demo.spec, weather, totals)
+    cut = walk_forward(demo.spec, table, totals, [season], demo.warn_at)
     want, got = season_rows(result.forecasts, season), season_rows(cut.forecasts, season)
     assert len(want) == 2 * 365 + 2 * (season == 2019)  # two levels; 2020 was a leap year
     assert want["probability"].notna().all()  # the season was forecast
@@ -147,19 +147,19 @@ def test_the_season_model_is_fitted_on_what_was_known_when_the_season_began(demo
     # Data as they stood on the season's first day; the model fitted on the issue days whose
     # outcome window and lab delay ended before it (the rule of cyanorisk.backtest), then asked
     # about the season's issue days. Its forecasts are the backtest's.
-    season, site = 2021, demo.site
-    start = pd.Timestamp(year=season, month=site.model.season_start_month, day=1)
-    weather, totals = known_by(demo, local_midnight_utc(site, season, site.model.season_start_month))
-    table = site_training_table(site, weather, totals)
+    season, site = 2021, demo.spec
+    start = pd.Timestamp(year=season, month=site.season_start_month, day=1)
+    weather, totals = known_by(demo, local_midnight_utc(site, season, site.season_start_month))
+    table = training_table(site, weather, totals)
     closed = pd.to_datetime(table["issue_date"]) + pd.Timedelta(
-        days=site.model.horizon_days + site.samples.lab_delay_days) < start
+        days=site.horizon_days + site.lab_delay_days) < start
     risk, _, clim = fit_models(site, table[closed.to_numpy()])
     X = prepare(demo.table)
-    in_season = season_of(X["issue_date"], site.model.season_start_month) == season
+    in_season = season_of(X["issue_date"], site.season_start_month) == season
     p = risk.predict_proba(X[in_season])
     c = clim.predict_proba(X.loc[in_season, "issue_date"])
     f = result.forecasts[result.forecasts["season"] == season]
-    for name in site.alert_scheme().names:
+    for name in site.levels:
         rows = f[f["level"] == name]
         np.testing.assert_array_equal(rows["issue_date"].to_numpy(),
                                       X.loc[in_season, "issue_date"].to_numpy())
@@ -197,18 +197,18 @@ def test_a_season_without_an_exceedance_is_reported_not_dropped(result):
 def test_a_whole_season_without_an_exceedance_is_reported_for_every_level(demo):
     # The demo's 2020-21 counts capped below Alert Level 1 (2,000 cells/mL, WHO 1999): a quiet
     # season, with the seasons around it as they were.
-    site = demo.site
-    totals = demo.samples.totals.copy()
+    site = demo.spec
+    totals = demo.totals.copy()
     in_2020 = season_of(totals["sampled_at"].dt.tz_convert(site.timezone).dt.tz_localize(None),
-                        site.model.season_start_month) == 2020
+                        site.season_start_month) == 2020
     assert in_2020.sum() > 20
     for column in ("cyano_cells_per_ml", "cyano_upper_cells_per_ml", "toxic_cells_per_ml"):
         totals.loc[in_2020, column] = totals.loc[in_2020, column].clip(upper=1500.0)
-    table = site_training_table(site, demo.weather.data, totals)
+    table = training_table(site, demo.weather, totals)
     quiet = walk_forward(site, table, totals, [2019, 2020, 2021], demo.warn_at)
     assert quiet.exceedances.loc[quiet.exceedances["season"] == 2020, "first_exceedance"].isna().all()
     assert sorted(quiet.scores["season"].unique()) == [2019, 2020, 2021]
-    for level in site.alert_scheme().names:
+    for level in site.levels:
         check_quiet(quiet.scores, 2020, level)
     assert sorted(quiet.overall["seasons"].unique()) == [3]
 
@@ -224,7 +224,7 @@ def test_season_scores_keep_a_season_without_events():
         "climatology": 0.25, "persistence": [0, 0, 0, 0, 0, 0, 1, 1]})
     exceedances = pd.DataFrame({"season": [2030, 2031], "level": "L1",
                                 "first_exceedance": [pd.NaT, pd.Timestamp("2031-12-03")]})
-    scores = season_scores(forecasts, exceedances, ["L1"], {"L1": 0.5})
+    scores = season_scores(forecasts, exceedances, ["L1"], Thresholds({"L1": 0.5}))
     quiet = scores[scores["season"] == 2030]
     assert len(quiet) == 3
     assert (quiet["events"] == 0).all() and (quiet["n"] == 4).all()
@@ -347,8 +347,7 @@ class PageCheck(HTMLParser):
 
 def test_backtest_command_writes_forecasts_scores_and_a_self_contained_page(demo, result,
                                                                            tmp_path, capsys):
-    config = demo.config_copy(tmp_path / "site.toml", data_dir=tmp_path / "work",
-                              reports_dir=tmp_path / "reports")
+    config = demo.config_copy(tmp_path / "site.toml", reports_dir=tmp_path / "reports")
     assert main(["backtest", "--config", str(config), "--seasons", "2019-2021"]) == 0
     out = capsys.readouterr().out
     assert "Tallowbark Reservoir (tallowbark): backtest of seasons 2019-2021" in out
@@ -397,8 +396,7 @@ def test_backtest_command_writes_forecasts_scores_and_a_self_contained_page(demo
 
 
 def test_backtest_command_refuses_seasons_outside_the_data(demo, tmp_path, capsys):
-    config = demo.config_copy(tmp_path / "site.toml", data_dir=tmp_path / "work",
-                              reports_dir=tmp_path / "reports")
+    config = demo.config_copy(tmp_path / "site.toml", reports_dir=tmp_path / "reports")
     assert main(["backtest", "--config", str(config), "--seasons", "1990-1995"]) == 1
     err = capsys.readouterr().err.strip().splitlines()
     assert err == ["cyanorisk: seasons '1990-1995': the data hold seasons 2016 to 2024"]

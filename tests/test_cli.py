@@ -91,9 +91,15 @@ def outputs(folder: Path, site_id: str = SITE) -> dict[str, Path]:
     return {"series": out / "weather.parquet", "rejects": out / "weather_rejects.csv"}
 
 
-def files_under(folder: Path) -> list[str]:
-    """Every file under ``folder``, hidden temporary files included."""
-    return sorted(str(p.relative_to(folder)) for p in folder.rglob("*") if p.is_file())
+def files_under(folder: Path, cache: bool = False) -> list[str]:
+    """Every file under ``folder``, hidden temporary files included; parsed raw files kept in a
+    site's ``cache/`` folder only with ``cache=True``."""
+    return sorted(str(p.relative_to(folder)) for p in folder.rglob("*")
+                  if p.is_file() and (cache or p.parent.name != "cache"))
+
+
+CLEAN_FILES = ["ingest_summary.json", "weather.parquet", "weather_rejects.csv"]
+"""What ingest writes for a site without lab files (besides its cache of parsed files)."""
 
 
 def one_sentence(stderr: str) -> str:
@@ -108,7 +114,7 @@ def test_ingest_writes_series_and_rejects_and_prints_a_summary(tmp_path, capsys)
     assert main(["ingest", "--config", str(config)]) == 0
     out = capsys.readouterr().out
     paths = outputs(tmp_path)
-    assert files_under(tmp_path / "work") == [f"{SITE}/weather.parquet", f"{SITE}/weather_rejects.csv"]
+    assert files_under(tmp_path / "work") == [f"{SITE}/{name}" for name in CLEAN_FILES]
     # The series is what the library gives for the same files and dialect.
     cfg = load_config(config)
     want, _ = read_weather(tmp_path / "raw" / SITE / "aws.txt", cfg.dialects["aws"], "30min",
@@ -155,15 +161,19 @@ def test_bad_row_with_stop_policy_exits_1_naming_file_line_and_column(tmp_path, 
     assert (files_under(work) if work.exists() else []) == []
 
 
-def test_stop_on_the_second_site_writes_nothing_for_the_first(tmp_path, capsys):
+def test_a_bad_row_on_one_site_stops_that_site_only(tmp_path, capsys):
+    # Sites are independent: the bad site is told in one sentence and writes nothing, the
+    # others are ingested, and the exit status says that a site failed.
     config = write_config(tmp_path, bad_rows="stop",
-                          files={"alpha": GOOD_FILE.replace("21..4", "21.4"), "beta": GOOD_FILE})
+                          files={"alpha": GOOD_FILE, "beta": GOOD_FILE.replace("21..4", "21.4")})
     assert main(["ingest", "--config", str(config)]) == 1
-    message = one_sentence(capsys.readouterr().err)
-    assert str(tmp_path / "raw" / "beta" / "aws.txt") in message
+    captured = capsys.readouterr()
+    message = one_sentence(captured.err)
+    assert str(tmp_path / "raw" / "alpha" / "aws.txt") in message
     assert f"line {BAD_LINE}" in message
-    work = tmp_path / "work"
-    assert (files_under(work) if work.exists() else []) == []
+    assert files_under(tmp_path / "work") == [f"beta/{name}" for name in CLEAN_FILES]
+    assert all(name.startswith("beta/") for name in files_under(tmp_path / "work", cache=True))
+    assert "Lake beta (beta)" in captured.out and "Lake alpha" not in captured.out
 
 
 def test_failed_write_leaves_earlier_outputs_untouched_and_no_temporary_files(tmp_path, capsys,
@@ -184,8 +194,7 @@ def test_failed_write_leaves_earlier_outputs_untouched_and_no_temporary_files(tm
     assert main(["ingest", "--config", str(config)]) == 1
     message = one_sentence(capsys.readouterr().err)
     assert "No space left on device" in message
-    assert files_under(tmp_path / "work") == [f"{SITE}/weather.parquet",
-                                              f"{SITE}/weather_rejects.csv"]
+    assert files_under(tmp_path / "work") == [f"{SITE}/{name}" for name in CLEAN_FILES]
     assert {k: p.read_bytes() for k, p in paths.items()} == before
 
 

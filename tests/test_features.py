@@ -261,7 +261,7 @@ def calm_series():
     return weather_frame(index, wind_speed_ms=u), issue, start
 
 
-def test_calm_hours_and_longest_calm_spell():
+def test_calm_h_and_longest_calm_spell():
     weather, issue, start = calm_series()
     table = FeatureBuilder(FeatureSettings(), "UTC").transform(weather, days=["2024-01-10"])
     r = row(table, "2024-01-10")
@@ -270,11 +270,11 @@ def test_calm_hours_and_longest_calm_spell():
     assert r["longest_calm_h_7d"] == pytest.approx(7.0, abs=1e-12)
     calm_7d = 14 + 6 + 11 + 6 + 4 + 4 + 4  # calm intervals in the 7 days
     usable_7d = 7 * 48 - 1  # one missing value
-    assert r["calm_hours_7d"] == pytest.approx(calm_7d / usable_7d * 7 * 24, rel=1e-12)
+    assert r["calm_h_7d"] == pytest.approx(calm_7d / usable_7d * 7 * 24, rel=1e-12)
     # the last 3 days are indices >= issue - 144: the 5.5 h and later spells, not the 3 h at 100
     assert start + 200 >= issue - 144 > start + 106
     calm_3d = 11 + 6 + 4 + 4 + 4
-    assert r["calm_hours_3d"] == pytest.approx(calm_3d / (3 * 48 - 1) * 3 * 24, rel=1e-12)
+    assert r["calm_h_3d"] == pytest.approx(calm_3d / (3 * 48 - 1) * 3 * 24, rel=1e-12)
     np.testing.assert_allclose(r["wind_speed_ms_missing_share_7d"], 1 / (7 * 48), rtol=1e-12)
 
 
@@ -297,8 +297,8 @@ def test_calm_threshold_after_height_adjustment():
     plain = FeatureBuilder(FeatureSettings(calm_windows=(3,)), "UTC").transform(weather)
     adjusted = FeatureBuilder(FeatureSettings(calm_windows=(3,), anemometer_height_m=10.0),
                               "UTC").transform(weather)
-    np.testing.assert_allclose(plain["calm_hours_3d"].to_numpy()[2:], 0.0, atol=0)
-    np.testing.assert_allclose(adjusted["calm_hours_3d"].to_numpy()[2:], 72.0, rtol=1e-12)
+    np.testing.assert_allclose(plain["calm_h_3d"].to_numpy()[2:], 0.0, atol=0)
+    np.testing.assert_allclose(adjusted["calm_h_3d"].to_numpy()[2:], 72.0, rtol=1e-12)
 
 
 # ---------------------------------------------------------------------------------------------

@@ -23,10 +23,13 @@ import pytest
 from cyanorisk.cli import main
 from cyanorisk.config import load_config
 from cyanorisk.features import issue_instants
-from cyanorisk.forecast import STATUS_ASSESSED, STATUS_INSUFFICIENT, Assessment
+from cyanorisk.forecast import STATUS_ASSESSED, STATUS_INSUFFICIENT, Assessment, assess
+from cyanorisk.ingest.samples import empty_totals
 from cyanorisk.levels import DEFERRAL, GENERAL_CAUTIONS, cautions
+from cyanorisk.pipeline import SitePipeline
 from cyanorisk.report.daily import render_json
-from cyanorisk.reporting import site_report, write_report
+from cyanorisk.report.document import report_document
+from cyanorisk.spec import Thresholds
 
 SECTIONS = ["headline", "freshness", "probabilities", "expected-count", "drivers", "plots",
             "quality", "cautions", "deferral", "model"]
@@ -130,7 +133,7 @@ def local_day(stamp: pd.Timestamp, timezone: str) -> pd.Timestamp:
 
 def last_reading_end(demo_site) -> pd.Timestamp:
     """End of the last interval of the demo's weather record [UTC]."""
-    return demo_site.weather.data.index[-1] + demo_site.site.interval
+    return demo_site.weather.index[-1] + demo_site.site.interval
 
 
 def report_day(demo_site) -> pd.Timestamp:
@@ -138,19 +141,23 @@ def report_day(demo_site) -> pd.Timestamp:
     return local_day(last_reading_end(demo_site) - pd.Timedelta(minutes=1), demo_site.site.timezone)
 
 
-def assess_demo(demo_site, as_of, site=None, totals=None) -> Assessment:
-    """The report orchestrator's assessment of the demo site for a local day, optionally for a
-    variant of the site or with other per-sample totals."""
-    weather = demo_site.weather if site is None else dataclasses.replace(demo_site.weather,
-                                                                         site=site)
-    samples = demo_site.samples if totals is None else dataclasses.replace(demo_site.samples,
-                                                                           totals=totals)
-    return site_report(demo_site.config, weather, samples, as_of)
+def assess_demo(demo_site, as_of, spec=None, totals=None) -> Assessment:
+    """The assessment of the demo site for a local day with its saved models and the default
+    thresholds, optionally for a variant of its specification or with other per-sample totals."""
+    spec = demo_site.spec if spec is None else spec
+    return assess(spec, demo_site.models, demo_site.weather,
+                  demo_site.totals if totals is None else totals, as_of,
+                  Thresholds.default(spec.levels), demo_site.clean.rows)
+
+
+def write_report(config, assessment: Assessment) -> list[Path]:
+    """The site pipeline's writing of a report, under the configuration's reports folder."""
+    return SitePipeline.of(config, config.sites[0]).write_report(assessment)
 
 
 def samples_before(demo_site, day: pd.Timestamp, days: int) -> pd.DataFrame:
     """The demo's per-sample totals without the samples of the ``days`` days before ``day``."""
-    totals = demo_site.samples.totals
+    totals = demo_site.totals
     cut = (day - pd.Timedelta(days=days)).tz_localize(demo_site.site.timezone)
     return totals[totals["sampled_at"] < cut].reset_index(drop=True)
 
@@ -161,7 +168,7 @@ def find_day(demo_site, wanted) -> tuple[pd.Timestamp, Assessment]:
     for back in range(0, 720, 10):
         day = end - pd.Timedelta(days=back)
         a = assess_demo(demo_site, day)
-        if wanted(a.content):
+        if wanted(report_document(a)):
             return day, a
     raise AssertionError("no such day in the demo record")
 
@@ -177,7 +184,7 @@ def written(demo_site, tmp_path_factory):
     folder = tmp_path_factory.mktemp("written")
     config = load_config(demo_site.write_config(folder / "site.toml",
                                                 reports_dir=folder / "reports"))
-    assessment = site_report(config, demo_site.weather, demo_site.samples, None)
+    assessment = SitePipeline.of(config, config.sites[0]).assess()
     paths = write_report(config, assessment)
     return config, assessment, paths
 
@@ -191,11 +198,11 @@ def test_report_writes_html_json_and_text_under_reports_site(written, demo_site)
     # nothing else: no temporary file left beside them
     assert files_under(config.reports_dir) == [f"{demo_site.site.id}/{stem}.{ext}"
                                                for ext in ("html", "json", "txt")]
-    assert assessment.content["as_of"] == str(day.date())
-    assert assessment.content["status"] == STATUS_ASSESSED
+    assert report_document(assessment)["as_of"] == str(day.date())
+    assert report_document(assessment)["status"] == STATUS_ASSESSED
     # the level is the highest whose probability reaches its warning threshold
-    f = assessment.content["forecast"]
-    reached = [k for k, n in enumerate(assessment.content["scheme"]["levels"], start=1)
+    f = report_document(assessment)["forecast"]
+    reached = [k for k, n in enumerate(report_document(assessment)["scheme"]["levels"], start=1)
                if f["probabilities"][n] >= f["warn_at"][n]]
     assert f["level_rank"] == max(reached, default=0)
 
@@ -218,7 +225,7 @@ def test_html_page_has_every_section_and_inline_plots_only(written):
     assert [r for r in page.references if not r[2].startswith("data:")] == []
     assert "@import" not in page.style
     assert "url(" not in page.style
-    assert assessment.content["headline"] in page.text["headline"]
+    assert report_document(assessment)["headline"] in page.text["headline"]
 
 
 def test_html_names_the_authority_in_the_deferral_and_lists_the_cautions(written, demo_site):
@@ -227,7 +234,7 @@ def test_html_names_the_authority_in_the_deferral_and_lists_the_cautions(written
     authority = demo_site.site.authority
     assert authority == "Merrin Falls Water and the regional health unit"  # demo.toml
     assert page.text["deferral"].strip() == DEFERRAL.format(authority=authority)
-    assert page.items["cautions"] == assessment.content["cautions"]
+    assert page.items["cautions"] == report_document(assessment)["cautions"]
 
 
 def test_json_report_validates_against_the_schema(written):
@@ -245,7 +252,7 @@ def test_text_summary_carries_headline_cautions_and_deferral(written):
     _, assessment, paths = written
     text = paths[2].read_text(encoding="utf-8")
     lines = text.splitlines()
-    c = assessment.content
+    c = report_document(assessment)
     assert lines[2] == c["headline"]
     start = lines.index("Cautions:")
     assert lines[start + 1:start + 1 + len(c["cautions"])] == [f"- {x}" for x in c["cautions"]]
@@ -260,8 +267,7 @@ def test_a_failed_write_leaves_the_earlier_report_and_no_temporary_files(written
                                                 reports_dir=tmp_path / "reports"))
     paths = write_report(config, assessment)
     before = {p.name: p.read_bytes() for p in paths}
-    changed = Assessment({**assessment.content, "headline": "A different headline"},
-                         assessment.counts, assessment.history)
+    changed = dataclasses.replace(assessment, headline="A different headline")
     real_write_text = Path.write_text
 
     def disk_full_on_text(self, data, *args, **kwargs):
@@ -284,18 +290,17 @@ def test_a_failed_write_leaves_the_earlier_report_and_no_temporary_files(written
 def test_no_sample_for_60_days_gives_insufficient_data_and_no_level(demo_site, tmp_path):
     day = report_day(demo_site)
     totals = samples_before(demo_site, day, 60)
-    samples = dataclasses.replace(demo_site.samples, totals=totals)
     config = load_config(demo_site.write_config(tmp_path / "site.toml",
                                                 reports_dir=tmp_path / "reports"))
-    a = site_report(config, demo_site.weather, samples, day)
-    c = a.content
-    site = demo_site.site
-    issue = issue_instants(pd.DatetimeIndex([day]), site.timezone, site.drivers.issue_time)[0]
+    a = assess_demo(demo_site, day, totals=totals)
+    c = report_document(a)
+    site = demo_site.spec
+    issue = issue_instants(pd.DatetimeIndex([day]), site.timezone, site.issue_time)[0]
     age = (issue - totals["sampled_at"].max()) / pd.Timedelta(days=1)
     assert age > 60
     assert c["status"] == STATUS_INSUFFICIENT
     assert c["status_reasons"] == [f"the last known sample is {age:.0f} days old (more than "
-                                   f"{site.model.stale_sample_days:g})"]
+                                   f"{site.stale_sample_days:g})"]
     assert c["headline"] == ("Insufficient data: " + c["status_reasons"][0]
                              + ". No forecast level is given.")
     assert (c["forecast"]["level_rank"], c["forecast"]["level"]) == (None, None)
@@ -313,13 +318,13 @@ def test_stale_weather_gives_insufficient_data(demo_site):
     tz = demo_site.site.timezone
     day = report_day(demo_site) + pd.Timedelta(days=5)
     a = assess_demo(demo_site, day)
-    c = a.content
-    issue = issue_instants(pd.DatetimeIndex([day]), tz, demo_site.site.drivers.issue_time)[0]
+    c = report_document(a)
+    issue = issue_instants(pd.DatetimeIndex([day]), tz, demo_site.spec.issue_time)[0]
     age = (issue - last_reading_end(demo_site)) / pd.Timedelta(days=1)
-    assert age > demo_site.site.model.stale_weather_days
+    assert age > demo_site.spec.stale_weather_days
     assert c["status"] == STATUS_INSUFFICIENT
     assert (f"the last weather reading is {age:.1f} days old "
-            f"(more than {demo_site.site.model.stale_weather_days:g})") in c["status_reasons"]
+            f"(more than {demo_site.spec.stale_weather_days:g})") in c["status_reasons"]
     assert c["headline"].startswith("Insufficient data: the last weather reading is")
     assert (c["forecast"]["level_rank"], c["forecast"]["level"]) == (None, None)
     assert c["freshness"]["weather_age_days"] == pytest.approx(age, abs=1e-9)
@@ -329,27 +334,26 @@ def test_stale_weather_gives_insufficient_data(demo_site):
 
 def test_weather_up_to_the_issue_time_is_fresh(demo_site):
     a = assess_demo(demo_site, report_day(demo_site))
-    assert a.content["status"] == STATUS_ASSESSED
-    assert a.content["status_reasons"] == []
-    assert a.content["freshness"]["weather_age_days"] == pytest.approx(0.0, abs=1e-12)
+    assert report_document(a)["status"] == STATUS_ASSESSED
+    assert report_document(a)["status_reasons"] == []
+    assert report_document(a)["freshness"]["weather_age_days"] == pytest.approx(0.0, abs=1e-12)
 
 
 def test_drivers_of_a_day_with_no_weather_in_its_windows_are_reported_missing(demo_site):
     day = report_day(demo_site) + pd.Timedelta(days=10)
     a = assess_demo(demo_site, day)
-    drivers = list(demo_site.fitted.risk.drivers)
+    drivers = list(demo_site.models.risk.drivers)
     from_weather = [d for d in drivers if d not in WEATHER_FREE_DRIVERS]
     # every weather driver's window (7 or 30 days) has at most 20 of its days with data,
     # below min_good_share (0.8) of the demo configuration
-    assert a.content["forecast"]["missing_drivers"] == from_weather
+    assert report_document(a)["forecast"]["missing_drivers"] == from_weather
 
 
 def test_a_site_without_lab_results_gives_insufficient_data(demo_site):
-    config = demo_site.config
-    a = site_report(config, demo_site.weather, None, report_day(demo_site))
-    assert a.content["status"] == STATUS_INSUFFICIENT
-    assert "no lab result is known yet" in a.content["status_reasons"]
-    assert a.content["observed"]["last_sampled_at"] is None
+    a = assess_demo(demo_site, report_day(demo_site), totals=empty_totals())
+    assert report_document(a)["status"] == STATUS_INSUFFICIENT
+    assert "no lab result is known yet" in report_document(a)["status_reasons"]
+    assert report_document(a)["observed"]["last_sampled_at"] is None
 
 
 def test_stale_report_with_an_undecided_last_level_is_still_written(demo_site):
@@ -360,7 +364,7 @@ def test_stale_report_with_an_undecided_last_level_is_still_written(demo_site):
     totals.loc[last, ["cyano_cells_per_ml", "cyano_upper_cells_per_ml"]] = 5000.0
     totals.loc[last, "cyano_censor"] = "<"
     a = assess_demo(demo_site, day, totals=totals)
-    c = a.content
+    c = report_document(a)
     assert c["status"] == STATUS_INSUFFICIENT
     assert c["observed"]["level"] == "unknown"
     assert c["deferral"] == DEFERRAL.format(authority=demo_site.site.authority)
@@ -368,10 +372,10 @@ def test_stale_report_with_an_undecided_last_level_is_still_written(demo_site):
 
 
 def test_report_json_is_standard_json_when_a_driver_is_missing(demo_site):
-    first = local_day(demo_site.weather.data.index[0], demo_site.site.timezone)
+    first = local_day(demo_site.weather.index[0], demo_site.site.timezone)
     day = first + pd.Timedelta(days=15)  # the record is shorter than a 30-day window
     a = assess_demo(demo_site, day)
-    assert "degree_days_15c_30d" in a.content["forecast"]["missing_drivers"]
+    assert "degree_days_15c_30d" in report_document(a)["forecast"]["missing_drivers"]
     validate(strict_json(render_json(a)))
 
 
@@ -410,35 +414,35 @@ def assert_general_cautions(content: dict, present: bool) -> None:
 def test_reports_above_level_0_carry_the_general_cautions_for_either_use(demo_site):
     day, drinking = find_day(demo_site, lambda c: c["status"] == STATUS_ASSESSED
                              and c["forecast"]["level_rank"] >= 1)
-    rank = drinking.content["forecast"]["level_rank"]
-    recreation_site = dataclasses.replace(demo_site.site, use="recreation")
-    recreation = assess_demo(demo_site, day, site=recreation_site)
-    assert recreation.content["forecast"]["level_rank"] == rank  # same model, same day
-    assert drinking.content["cautions"] == list(cautions(rank, "drinking"))
-    assert recreation.content["cautions"] == list(cautions(rank, "recreation"))
-    assert drinking.content["cautions"] != recreation.content["cautions"]
+    rank = report_document(drinking)["forecast"]["level_rank"]
+    recreation_site = dataclasses.replace(demo_site.spec, use="recreation")
+    recreation = assess_demo(demo_site, day, spec=recreation_site)
+    assert report_document(recreation)["forecast"]["level_rank"] == rank  # same model, same day
+    assert report_document(drinking)["cautions"] == list(cautions(rank, "drinking"))
+    assert report_document(recreation)["cautions"] == list(cautions(rank, "recreation"))
+    assert report_document(drinking)["cautions"] != report_document(recreation)["cautions"]
     for a in (drinking, recreation):
-        assert_general_cautions(a.content, present=True)
-        assert a.content["deferral"] == DEFERRAL.format(authority=demo_site.site.authority)
+        assert_general_cautions(report_document(a), present=True)
+        assert report_document(a)["deferral"] == DEFERRAL.format(authority=demo_site.site.authority)
         validate(strict_json(render_json(a)))
 
 
 def test_a_report_below_level_1_has_routine_cautions_and_the_deferral(demo_site):
     _, a = find_day(demo_site, lambda c: c["status"] == STATUS_ASSESSED
                     and c["forecast"]["level_rank"] == 0)
-    assert a.content["cautions"] == list(cautions(0, "drinking"))
-    assert_general_cautions(a.content, present=False)
-    assert a.content["deferral"] == DEFERRAL.format(authority=demo_site.site.authority)
+    assert report_document(a)["cautions"] == list(cautions(0, "drinking"))
+    assert_general_cautions(report_document(a), present=False)
+    assert report_document(a)["deferral"] == DEFERRAL.format(authority=demo_site.site.authority)
 
 
 def test_the_deferral_names_the_configured_authority(demo_site):
-    site = dataclasses.replace(demo_site.site, authority="the Kestrel Basin Health Board")
+    site = dataclasses.replace(demo_site.spec, authority="the Kestrel Basin Health Board")
     day = report_day(demo_site)
     statuses = []
     for totals in (None, samples_before(demo_site, day, 60)):
-        a = assess_demo(demo_site, day, site=site, totals=totals)
-        statuses.append(a.content["status"])
-        assert a.content["deferral"] == (
+        a = assess_demo(demo_site, day, spec=site, totals=totals)
+        statuses.append(report_document(a)["status"])
+        assert report_document(a)["deferral"] == (
             "Advisories, closures and changes to treatment are decided by the Kestrel Basin "
             "Health Board under local codes. This report supports that decision; it does not "
             "make it.")
@@ -450,8 +454,7 @@ def test_the_deferral_names_the_configured_authority(demo_site):
 # ---------------------------------------------------------------------------------------------
 
 def test_report_command_writes_the_three_files_for_the_date(demo_site, tmp_path, capsys):
-    config = demo_site.write_config(tmp_path / "site.toml", data_dir=tmp_path / "work",
-                                    reports_dir=tmp_path / "reports")
+    config = demo_site.write_config(tmp_path / "site.toml", reports_dir=tmp_path / "reports")
     day = report_day(demo_site) - pd.Timedelta(days=30)
     date = str(day.date())
     assert main(["report", "--config", str(config), "--as-of", date]) == 0
@@ -470,8 +473,7 @@ def test_report_command_writes_the_three_files_for_the_date(demo_site, tmp_path,
 
 def test_report_command_without_a_trained_model_exits_1_naming_the_file(demo_site, tmp_path,
                                                                         capsys):
-    config = demo_site.write_config(tmp_path / "site.toml", data_dir=tmp_path / "work",
-                                    reports_dir=tmp_path / "reports",
+    config = demo_site.write_config(tmp_path / "site.toml", reports_dir=tmp_path / "reports",
                                     models_dir=tmp_path / "models")
     assert main(["report", "--config", str(config), "--as-of",
                  str(report_day(demo_site).date())]) == 1

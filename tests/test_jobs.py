@@ -30,6 +30,7 @@ from aiosmtpd.controller import Controller
 
 from cyanorisk.config import load_config
 from cyanorisk.forecast import STATUS_NONE
+from cyanorisk.pipeline import site as site_module
 from cyanorisk.service import jobs
 from cyanorisk.service.jobs import RunLockedError, run_daily, run_lock, sha256_of
 from cyanorisk.service.store import Store
@@ -78,6 +79,8 @@ class Clock:
 def make_config(tmp: Path, demo_site, *, copy_data: bool = False, extra: str = "") -> Path:
     """A copy of the demo configuration with data, reports and models (a copy of the fixture's
     model) under ``tmp``; with ``copy_data`` it reads a copy of the demo exports, too."""
+    if not copy_data:  # the same raw files as the session's: start with its clean tables
+        demo_site.seed(tmp / "work")
     models = tmp / "models"
     models.mkdir()
     shutil.copy2(demo_site.model_file, models / demo_site.model_file.name)
@@ -120,15 +123,17 @@ def opened(config) -> Store:
 
 @pytest.fixture
 def count_ingests(monkeypatch) -> list[str]:
-    """Site ids passed to ingest_site_weather by the job, one per call."""
+    """Site ids of the fresh ingests the site pipeline made (clean tables not reused)."""
     calls: list[str] = []
-    real = jobs.ingest_site_weather
+    real = site_module.clean_site
 
-    def counting(config, site):
-        calls.append(site.id)
-        return real(config, site)
+    def counting(site, workspace, digests, **kwargs):
+        clean = real(site, workspace, digests, **kwargs)
+        if not clean.reused:
+            calls.append(site.id)
+        return clean
 
-    monkeypatch.setattr(jobs, "ingest_site_weather", counting)
+    monkeypatch.setattr(site_module, "clean_site", counting)
     return calls
 
 
@@ -202,7 +207,7 @@ def test_changed_thresholds_issue_revision_2(tmp_path, demo_site, count_ingests)
     (o2,) = run_daily(RISE_DAY, config, clock=clock).sites
     assert (o2.action, o2.revision) == ("issued", 2)
     assert o2.reason == "inputs changed: thresholds changed"
-    assert count_ingests == [SITE]  # no data file changed: no second ingest
+    assert count_ingests == []  # no data file changed: the clean tables served both runs
     with opened(config) as store:
         r1, r2 = store.reports(SITE, RISE_DAY)
     assert r1.thresholds["warn_at"][ALERT1] == 0.5

@@ -29,12 +29,12 @@ from cyanorisk.model import (
     NotFittedError,
     PersistenceModel,
     RiskModel,
-    load_bundle,
+    SiteModels,
+    bundle_text,
     ordinal_outcome,
     prepare,
-    save_bundle,
+    read_bundle,
 )
-from cyanorisk.reporting import load_models
 
 pytestmark = pytest.mark.filterwarnings("error")
 
@@ -335,21 +335,18 @@ def saved(tmp_path):
     count = CountModel(("a", "b", "c")).fit(X, np.where(np.isnan(y), np.nan, y + 2.5))
     clim = ClimatologyModel(("level 1", "level 2")).fit(dates, y)
     path = tmp_path / "lake.json"
-    body = {"site_id": "lake", "risk": risk.to_dict(), "count": count.to_dict(),
-            "climatology": clim.to_dict()}
-    path.write_text(save_bundle(path, body), encoding="utf-8")
+    path.write_text(bundle_text(SiteModels("lake", risk, count, clim, {})), encoding="utf-8")
     return path, X, dates, (risk, count, clim)
 
 
 def test_json_round_trip_gives_identical_predictions(saved):
     path, X, dates, (risk, count, clim) = saved
     payload = json.loads(path.read_text(encoding="utf-8"))
-    assert (payload["format"], payload["format_version"]) == ("cyanorisk-model", 1)
+    assert (payload["format"], payload["format_version"]) == ("cyanorisk-model", 2)
     assert payload["cyanorisk_version"] == cyanorisk.__version__
-    body = load_bundle(path)
-    risk2 = RiskModel.from_dict(body["risk"])
-    count2 = CountModel.from_dict(body["count"])
-    clim2 = ClimatologyModel.from_dict(body["climatology"])
+    loaded = read_bundle(path)
+    assert loaded.site_id == "lake"
+    risk2, count2, clim2 = loaded.risk, loaded.count, loaded.climatology
     pd.testing.assert_frame_equal(risk2.predict_proba(X), risk.predict_proba(X), check_exact=True)
     pd.testing.assert_frame_equal(count2.predict(X), count.predict(X), check_exact=True)
     pd.testing.assert_frame_equal(clim2.predict_proba(dates), clim.predict_proba(dates),
@@ -372,7 +369,7 @@ def test_a_file_from_another_version_is_refused_naming_file_and_versions(saved):
     path = saved[0]
     edit(path, lambda p: p.update(cyanorisk_version="0.0.1"))
     with pytest.raises(ModelFileError) as info:
-        load_bundle(path)
+        read_bundle(path)
     message = str(info.value)
     assert message.startswith(f"{path}: ")
     assert "written by cyanorisk 0.0.1" in message
@@ -382,9 +379,9 @@ def test_a_file_from_another_version_is_refused_naming_file_and_versions(saved):
 
 def test_a_file_of_another_format_version_is_refused(saved):
     path = saved[0]
-    edit(path, lambda p: p.update(format_version=2))
-    with pytest.raises(ModelFileError, match=r"\(format 2\)"):
-        load_bundle(path)
+    edit(path, lambda p: p.update(format_version=1))
+    with pytest.raises(ModelFileError, match=r"\(format 1\)"):
+        read_bundle(path)
 
 
 def test_a_file_edited_by_hand_is_refused_by_its_checksum(saved):
@@ -395,7 +392,7 @@ def test_a_file_edited_by_hand_is_refused_by_its_checksum(saved):
 
     edit(path, nudge)
     with pytest.raises(ModelFileError) as info:
-        load_bundle(path)
+        read_bundle(path)
     assert str(info.value).startswith(f"{path}: the checksum does not match the content")
 
 
@@ -408,14 +405,14 @@ def test_a_file_that_is_not_a_model_is_refused(tmp_path, text, problem):
     path = tmp_path / "other.json"
     path.write_text(text, encoding="utf-8")
     with pytest.raises(ModelFileError) as info:
-        load_bundle(path)
+        read_bundle(path)
     assert str(info.value).startswith(f"{path}: {problem}")
 
 
 def test_demo_models_saved_under_models_load_with_identical_predictions(demo_site):
-    models = load_models(demo_site.config, demo_site.site)
+    models = demo_site.pipeline.models()
     X = prepare(demo_site.table)
-    fitted = demo_site.fitted
+    fitted = demo_site.models
     pd.testing.assert_frame_equal(models.risk.predict_proba(X), fitted.risk.predict_proba(X),
                                   check_exact=True)
     pd.testing.assert_frame_equal(models.count.predict(X), fitted.count.predict(X),
@@ -510,14 +507,14 @@ def test_persistence_keeps_the_last_level_and_is_missing_without_a_sample():
 # ---------------------------------------------------------------------------------------------
 
 def test_model_ranks_demo_issue_days_better_than_climatology(demo_site):
-    site, table = demo_site.site, demo_site.table
-    cv = training.cross_validate(site, table)
-    names = site.alert_scheme().names
+    spec, table = demo_site.spec, demo_site.table
+    cv = training.cross_validate(spec, table)
+    names = spec.levels
     assert names[0] == "Alert Level 1"
     # every season with labels was forecast by models fitted on the other seasons
     X = prepare(table)
-    y = ordinal_outcome(X, training.label_columns(site))
-    seasons = training.season_of(X["issue_date"], site.model.season_start_month)
+    y = ordinal_outcome(X, training.label_columns(spec))
+    seasons = training.season_of(X["issue_date"], spec.season_start_month)
     assert sorted(cv["season"].unique()) == sorted(np.unique(seasons[~np.isnan(y)]))
     assert len(cv) == int((~np.isnan(y)).sum())
     model = training.skill(cv, names)["Alert Level 1"]["roc_auc"]

@@ -69,11 +69,12 @@ def utc(stamp: str) -> pd.Timestamp:
 
 
 def read_long(**changes):
-    return read_samples(LONG_FILE, dataclasses.replace(LONG, **changes), TZ)
+    return read_samples(LONG_FILE, dataclasses.replace(LONG, **changes), TZ, bad_rows="reject")
 
 
 def read_wide(**changes):
-    return read_samples(WIDE_FILE, dataclasses.replace(WIDE, **changes), TZ, site_id="wendmere")
+    return read_samples(WIDE_FILE, dataclasses.replace(WIDE, **changes), TZ, site_id="wendmere",
+                        bad_rows="reject")
 
 
 def by_key(records: pd.DataFrame) -> dict:
@@ -277,7 +278,7 @@ def test_header_unit_cells_per_ml_is_not_converted(tmp_path):
                     "X1,2024-06-05,1500,3000\n", encoding="utf-8")
     layout = SampleLayout(shape="wide", separator=",", skip_lines=0, date_order="ymd",
                           sample_id_column="Sample", sampled_date_column="Date")
-    records, meta = read_samples(path, layout, TZ, site_id="s")
+    records, meta = read_samples(path, layout, TZ, site_id="s", bad_rows="reject")
     check_records(records, {
         ("X1", "Microcystis aeruginosa"): (1500.0, "=", "time_assumed", "2024-06-05 08:00"),
         # 3000 cells/L / 1000 = 3 cells/mL (1 L = 1000 mL, SI)

@@ -56,8 +56,11 @@ ALERT1 = "Alert Level 1"
 HOUR = timedelta(hours=1)
 
 
-def make_config(tmp: Path, demo_site, extra: str = "") -> Path:
-    """A copy of the demo configuration with data, reports and models (a copy) under ``tmp``."""
+def make_config(tmp: Path, demo_site, extra: str = "", seed: bool = True) -> Path:
+    """A copy of the demo configuration with data, reports and models (a copy) under ``tmp``;
+    with ``seed`` its data folder starts with the session's clean tables (conftest)."""
+    if seed:
+        demo_site.seed(tmp / "work")
     models = tmp / "models"
     models.mkdir()
     shutil.copy2(demo_site.model_file, models / demo_site.model_file.name)
@@ -253,7 +256,7 @@ def test_missed_days_are_capped(tmp_path, demo_site):
 def test_no_catch_up_days_allowed_means_none(tmp_path, demo_site):
     config = load_config(make_config(tmp_path, demo_site, extra="\n[service]\nmax_catch_up_days = 0\n"))
     assert config.service.max_catch_up_days == 0
-    config.data_dir.mkdir()
+    config.data_dir.mkdir(exist_ok=True)
     with opened(config) as store:
         store.record_report(recorded("2024-06-10"))
         days = missed_days(config, config.sites[0], datetime(2024, 6, 13, 7, tzinfo=MELBOURNE), store)
@@ -311,7 +314,7 @@ def test_catch_up_runs_each_missed_day_once(tmp_path, demo_site, monkeypatch):
 
 def test_listeners_record_missed_runs_and_errors(tmp_path, demo_site, monkeypatch):
     config = load_config(make_config(tmp_path, demo_site))
-    config.data_dir.mkdir()  # the service has run here before
+    config.data_dir.mkdir(exist_ok=True)  # the service has run here before
     scheduler = BackgroundScheduler(timezone="UTC")
     added: list[tuple] = []
     monkeypatch.setattr(scheduler, "add_listener", lambda callback, mask: added.append((callback, mask)))
@@ -339,7 +342,7 @@ def test_listeners_record_missed_runs_and_errors(tmp_path, demo_site, monkeypatc
 
 def test_listeners_on_a_running_scheduler(tmp_path, demo_site):
     config = load_config(make_config(tmp_path, demo_site))
-    config.data_dir.mkdir()  # the service has run here before
+    config.data_dir.mkdir(exist_ok=True)  # the service has run here before
     Store(config.store_url).close()  # created before the scheduler's threads use it
     scheduler = BackgroundScheduler(timezone="UTC")
     add_listeners(scheduler, config)
@@ -446,7 +449,7 @@ def test_serve_then_status_then_run(tmp_path, demo_site, capsys):
 
 
 def test_status_before_any_run(tmp_path, demo_site, capsys):
-    path = make_config(tmp_path, demo_site)
+    path = make_config(tmp_path, demo_site, seed=False)
     assert not load_config(path).data_dir.exists()  # a new installation: nothing has run yet
     assert main(["status", "--config", str(path)]) == 0
     assert capsys.readouterr().out.splitlines() == [

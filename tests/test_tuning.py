@@ -1,5 +1,5 @@
 """Threshold tuning (cyanorisk.tuning), ``cyanorisk tune`` and the tuned thresholds in the daily
-report (cyanorisk.reporting.thresholds_for).
+report (cyanorisk.pipeline.SitePipeline.thresholds).
 
 The choice rules are checked on a hand-made forecast set whose answers are worked out by hand
 below; the command on the demo reservoir (cyanorisk.demo, 8 years, generated once for this
@@ -27,7 +27,8 @@ from cyanorisk.backtest import parse_seasons, walk_forward
 from cyanorisk.cli import main
 from cyanorisk.config import load_config
 from cyanorisk.model import ModelFileError
-from cyanorisk.reporting import DEFAULT_WARN_AT, thresholds_for
+from cyanorisk.pipeline import SitePipeline
+from cyanorisk.spec import DEFAULT_WARN_AT, Thresholds
 from cyanorisk.training import season_of
 from cyanorisk.tuning import THRESHOLDS, choose_by_cost, choose_by_hit_rate, sweep, tune_level
 from cyanorisk.verify import contingency
@@ -180,18 +181,20 @@ class Demo:
     def __getattr__(self, name: str):
         return getattr(self.site_data, name)
 
-    @property
-    def totals(self) -> pd.DataFrame:
-        return self.site_data.samples.totals
-
     def config_copy(self, folder: Path) -> Path:
-        """The demo configuration in ``folder``, reading the demo's data and writing its clean
-        data, reports and models under ``folder``; the fitted models copied there."""
+        """The demo configuration in ``folder``, reading the demo's data (and reusing the
+        session's clean tables) and writing reports and models under ``folder``; the fitted
+        models copied there."""
         (folder / "models").mkdir()
         shutil.copy(self.model_file, folder / "models" / self.model_file.name)
-        return self.site_data.write_config(folder / "site.toml", data_dir=folder / "data",
-                                           reports_dir=folder / "reports",
+        return self.site_data.write_config(folder / "site.toml", reports_dir=folder / "reports",
                                            models_dir=folder / "models")
+
+
+def thresholds_for(config_path: Path) -> Thresholds:
+    """The thresholds the site pipeline applies for the configuration's site."""
+    config = load_config(config_path)
+    return SitePipeline.of(config, config.sites[0]).thresholds()
 
 
 @pytest.fixture(scope="module")
@@ -203,11 +206,10 @@ def demo(demo_site) -> Demo:
 def result(demo):
     """The library's backtest of the demo over the seasons ``cyanorisk tune`` uses by default
     (all but the first), with the default thresholds."""
-    names = demo.site.alert_scheme().names
+    names = demo.spec.levels
     seasons = parse_seasons(None, sorted(set(season_of(demo.table["issue_date"], 7).tolist())))
     assert seasons == list(range(2017, 2025))
-    return walk_forward(demo.site, demo.table, demo.totals, seasons,
-                        {n: DEFAULT_WARN_AT for n in names})
+    return walk_forward(demo.spec, demo.table, demo.totals, seasons, Thresholds.default(names))
 
 
 def best_hit_rate(result, level: str) -> float:
@@ -230,7 +232,7 @@ def test_tune_writes_thresholds_and_plot_and_the_next_report_applies_them(demo, 
     assert f"wrote {path}" in out and f"wrote {plot}" in out
     assert plot.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     tuned = tomllib.loads(path.read_text(encoding="utf-8"))
-    names = demo.site.alert_scheme().names
+    names = demo.spec.levels
     assert tuned["site_id"] == SITE_ID
     assert tuned["seasons"] == "2017-2024"
     assert tuned["rule"] == "miss cost 5 (a missed exceedance costs 5 false alarms)"
@@ -258,7 +260,7 @@ def test_report_without_a_thresholds_file_uses_the_default(demo, tmp_path, capsy
     capsys.readouterr()
     forecast = json.loads((tmp_path / "reports" / SITE_ID / f"{SITE_ID}_2025-01-14.json")
                           .read_text(encoding="utf-8"))["forecast"]
-    assert forecast["warn_at"] == {n: DEFAULT_WARN_AT for n in demo.site.alert_scheme().names}
+    assert forecast["warn_at"] == {n: DEFAULT_WARN_AT for n in demo.spec.levels}
     assert forecast["thresholds_source"] == "default: 50% for every level (not tuned for this site)"
 
 
@@ -278,7 +280,7 @@ def test_a_level_whose_target_cannot_be_met_keeps_its_earlier_threshold(demo, re
     assert "  Alert Level 1: target hit rate" in out
     assert re.search(r"Alert Level 2: no threshold reaches a hit rate of .*; its threshold is left "
                      r"as it was", out)
-    warn_at = thresholds_for(load_config(config), demo.site).warn_at
+    warn_at = thresholds_for(config).warn_at
     assert warn_at["Alert Level 1"] == pytest.approx(
         choose_by_hit_rate(sweep(result.forecasts[result.forecasts["level"] == "Alert Level 1"]
                                  .dropna(subset=["probability"]), result.exceedances,
@@ -297,7 +299,7 @@ def test_a_thresholds_file_the_scheme_cannot_use_is_refused_naming_the_file(demo
     path = thresholds_file(config)
     path.write_text(f'site_id = "{SITE_ID}"\n' + body, encoding="utf-8")
     with pytest.raises(ModelFileError) as err:
-        thresholds_for(load_config(config), demo.site)
+        thresholds_for(config)
     assert str(err.value).startswith(f"{path}: ")
     assert problem in str(err.value)
     # the daily report refuses it too: one sentence naming the file, exit 1, no report

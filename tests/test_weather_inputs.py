@@ -25,6 +25,8 @@ FILE_LEVEL = pytest.mark.parametrize("bad_rows", ["stop", "reject"])
 # ------------------------------------------------------------------------------------- helpers
 
 def _read(name, dialect=None, interval="30min", timezone="UTC", **kwargs):
+    """read_weather of a fixture; bad rows go to the ledger unless a test says otherwise."""
+    kwargs.setdefault("bad_rows", "reject")
     return read_weather(DATA / name, dialect, interval, timezone, **kwargs)
 
 

@@ -125,6 +125,7 @@ class Scenario:
         return path
 
     def read(self, paths: list[Path], **kwargs) -> tuple[pd.DataFrame, object]:
+        kwargs.setdefault("bad_rows", "reject")
         return read_weather(paths, dialect(self.zone), f"{STEP_MIN}min", ZONES[self.zone],
                             **kwargs)
 
@@ -368,7 +369,7 @@ def _read(text: str) -> tuple[pd.DataFrame, object]:
     with tempfile.TemporaryDirectory() as tmp:
         path = Path(tmp) / "x.txt"
         path.write_text(text, encoding="utf-8")
-        return read_weather([path], dialect("UTC"), "30min", "UTC")
+        return read_weather([path], dialect("UTC"), "30min", "UTC", bad_rows="reject")
 
 
 GOOD = (f"{PREAMBLE}\n{SEP.join(HEADER)}\n"
@@ -413,7 +414,8 @@ def test_conflict_flag_kept_when_the_kept_reading_is_out_of_range(duplicates, me
     with tempfile.TemporaryDirectory() as tmp:
         path = Path(tmp) / "x.txt"
         path.write_text(CONFLICT_IN_AN_INTERVAL, encoding="utf-8")
-        data, meta = read_weather([path], dialect("UTC"), "30min", "UTC", duplicates=duplicates)
+        data, meta = read_weather([path], dialect("UTC"), "30min", "UTC", duplicates=duplicates,
+                                  bad_rows="reject")
     assert meta.account.duplicates_conflicting == 1
     np.testing.assert_allclose(data["air_temp_c"].iloc[0], mean, rtol=0, atol=1e-12)
     assert data["air_temp_c_flag"].iloc[0] == "duplicate_conflict"
@@ -427,7 +429,7 @@ def test_lone_off_grid_reading_is_not_flagged_ok():
     with tempfile.TemporaryDirectory() as tmp:
         path = Path(tmp) / "x.txt"
         path.write_text(text, encoding="utf-8")
-        data, meta = read_weather([path], dialect("UTC"), "30min", "UTC")
+        data, meta = read_weather([path], dialect("UTC"), "30min", "UTC", bad_rows="reject")
     assert (meta.account.kept, meta.account.off_grid) == (2, 1)
     np.testing.assert_allclose(data["air_temp_c"].to_numpy(), [10.0, 12.0, 14.0], rtol=0, atol=0)
     # Flag.OK: "A reading on the grid, kept as read"; Flag.AGGREGATED: combined by the resample

@@ -28,7 +28,7 @@ import pytest
 
 from cyanorisk.config import load_config
 from cyanorisk.ingest import read_weather
-from cyanorisk.ingest.sites import ingest_site_weather
+from cyanorisk.pipeline import SitePipeline
 
 pvlib = pytest.importorskip("pvlib")
 
@@ -101,7 +101,7 @@ def tmy(tmy_path, tmp_path_factory):
     config_path.write_text(CONFIG.format(year=YEAR, path=json.dumps(str(tmy_path))),
                            encoding="utf-8")
     config = load_config(config_path)
-    return config, ingest_site_weather(config, config.site("greensboro"))
+    return config, SitePipeline.of(config, config.site("greensboro")).clean()
 
 
 @pytest.fixture(scope="module")
@@ -123,12 +123,11 @@ def test_file_has_the_layout_this_test_assumes(raw_rows):
 
 def test_every_row_lands_on_an_hourly_grid_with_nothing_rejected(tmy):
     config, result = tmy
-    data, meta = result.data, result.meta
+    data, summary = result.weather, result.summary["weather"]
     assert len(data) == 8760
-    assert meta.account.as_dict() == {"read": 8760, "kept": 8760, "duplicates_identical": 0,
-                                      "duplicates_conflicting": 0, "off_grid": 0, "rejected": 0}
-    meta.account.check()
-    assert len(meta.rejects) == 0
+    assert summary["rows"] == {"read": 8760, "kept": 8760, "duplicates_identical": 0,
+                               "duplicates_conflicting": 0, "off_grid": 0, "rejected": 0}
+    assert summary["ledger_by_reason"] == {}
     assert config.dialects["tmy3"].stamp_marks == "end"
     # The first row, 01/01 01:00 hour-ending at UTC-5 (NREL TMY3 manual, from memory), reports
     # 00:00-01:00 local = 05:00-06:00 UTC; the index labels the interval start.
@@ -145,7 +144,7 @@ def test_every_row_lands_on_an_hourly_grid_with_nothing_rejected(tmy):
 
 def test_daily_mean_temperature_matches_a_direct_reading_of_the_file(tmy, raw_rows):
     _, result = tmy
-    data = result.data
+    data = result.weather
     # Cyanorisk: group by the local date (UTC-5) of each interval START.
     local_day = (data.index + UTC_OFFSET).strftime("%m/%d")
     ours = data["air_temp_c"].groupby(local_day).mean()
@@ -167,8 +166,8 @@ def test_daily_mean_with_pandas_read_csv(tmy, tmy_path):
     _, result = tmy
     raw = pd.read_csv(tmy_path, skiprows=1, usecols=["Date (MM/DD/YYYY)", "Dry-bulb (C)"])
     direct = raw.groupby(raw["Date (MM/DD/YYYY)"].str[:5])["Dry-bulb (C)"].mean()
-    ours = result.data["air_temp_c"].groupby(
-        (result.data.index + UTC_OFFSET).strftime("%m/%d")).mean()
+    ours = result.weather["air_temp_c"].groupby(
+        (result.weather.index + UTC_OFFSET).strftime("%m/%d")).mean()
     np.testing.assert_allclose(ours[direct.index].to_numpy(), direct.to_numpy(), rtol=0,
                                atol=1e-9)
 
@@ -180,8 +179,8 @@ def test_values_agree_with_pvlib_read_tmy3(tmy, tmy_path):
     ref, meta = pvlib.iotools.read_tmy3(str(tmy_path), coerce_year=YEAR, map_variables=True)
     assert meta["TZ"] == -5.0
     start_utc = (ref.index - pd.Timedelta(hours=1)).tz_convert("UTC").as_unit("ns")
-    ours = result.data.reindex(start_utc)
-    assert ours.index.equals(result.data.index)
+    ours = result.weather.reindex(start_utc)
+    assert ours.index.equals(result.weather.index)
     for variable, pvlib_name in COLUMNS.values():
         want = ref[pvlib_name].to_numpy(dtype=float)
         got = ours[variable].to_numpy()
@@ -189,7 +188,7 @@ def test_values_agree_with_pvlib_read_tmy3(tmy, tmy_path):
             got, want = np.mod(got, 360.0), np.mod(want, 360.0)
         np.testing.assert_allclose(got, want, rtol=0, atol=1e-9, err_msg=variable)
     # A few values read off the file by eye: 01/01 01:00 (first row) and 12/31 24:00 (last).
-    first, last = result.data.iloc[0], result.data.iloc[-1]
+    first, last = result.weather.iloc[0], result.weather.iloc[-1]
     np.testing.assert_allclose(
         [first["air_temp_c"], first["rel_humidity_pct"], first["pressure_hpa"]], [10.0, 77, 993],
         rtol=0, atol=1e-12)
@@ -201,5 +200,5 @@ def test_values_agree_with_pvlib_read_tmy3(tmy, tmy_path):
 def test_read_weather_with_the_config_dialect_gives_the_same_series(tmy, tmy_path):
     config, result = tmy
     data, meta = read_weather(tmy_path, config.dialects["tmy3"], "1h", "Etc/GMT+5")
-    pd.testing.assert_frame_equal(data, result.data, check_exact=True)
-    assert meta.account == result.meta.account
+    pd.testing.assert_frame_equal(data, result.weather, check_exact=True)
+    assert meta.account.as_dict() == result.summary["weather"]["rows"]

@@ -20,11 +20,12 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from cyanorisk.config import Site
+from cyanorisk.errors import BacktestError
 from cyanorisk.levels import meets
 from cyanorisk.model import PersistenceModel, ordinal_outcome, prepare
+from cyanorisk.spec import SiteSpec, Thresholds
 from cyanorisk.training import fit_models, label_columns, season_of
-from cyanorisk.verify import brier_score, contingency, lead_time_days, roc_auc
+from cyanorisk.verify import brier_score, brier_skill_score, contingency, lead_time_days, roc_auc
 
 MIN_HISTORY_DAYS = 300
 """Labelled issue days a season's model needs to have learned from (about a season's worth):
@@ -51,10 +52,6 @@ class BacktestResult:
     notes: list[str]
 
 
-class BacktestError(ValueError):
-    """A backtest that cannot be run as asked (e.g. seasons outside the data)."""
-
-
 def parse_seasons(text: str | None, available: Sequence[int]) -> list[int]:
     """'2015-2022' or '2018' -> season start years; None -> all but the first season (which
     has nothing before it to learn from)."""
@@ -72,26 +69,25 @@ def parse_seasons(text: str | None, available: Sequence[int]) -> list[int]:
     return chosen
 
 
-def walk_forward(site: Site, table: pd.DataFrame, totals: pd.DataFrame, seasons: Iterable[int],
-                 warn_at: dict[str, float],
+def walk_forward(spec: SiteSpec, table: pd.DataFrame, totals: pd.DataFrame, seasons: Iterable[int],
+                 thresholds: Thresholds,
                  progress: Callable[[Iterable, int, str], Iterable] | None = None) -> BacktestResult:
     """Run the walk-forward backtest of one site over ``seasons`` (season start years)."""
     seasons = list(seasons)
-    scheme = site.alert_scheme()
-    names = scheme.names
-    h = site.model.horizon_days
-    delay = site.samples.lab_delay_days if site.samples else 3.0
+    names = spec.levels
+    h = spec.horizon_days
+    delay = spec.lab_delay_days
     X = prepare(table)
-    y = ordinal_outcome(X, label_columns(site))
+    y = ordinal_outcome(X, label_columns(spec))
     issue_day = pd.to_datetime(X["issue_date"])
-    season = season_of(X["issue_date"], site.model.season_start_month)
+    season = season_of(X["issue_date"], spec.season_start_month)
     parts, notes = [], []
     loop = progress(seasons, len(seasons), "backtest") if progress else seasons
     for s in loop:
-        start = pd.Timestamp(year=int(s), month=site.model.season_start_month, day=1)
+        start = pd.Timestamp(year=int(s), month=spec.season_start_month, day=1)
         in_season = season == s
         known_before = (issue_day + pd.Timedelta(days=h + delay)) < start
-        part = pd.DataFrame({"site_id": site.id, "season": s,
+        part = pd.DataFrame({"site_id": spec.site_id, "season": s,
                              "issue_date": X.loc[in_season, "issue_date"].to_numpy()})
         history = int((known_before.to_numpy() & ~np.isnan(y)).sum())
         risk = clim = None
@@ -100,7 +96,7 @@ def walk_forward(site: Site, table: pd.DataFrame, totals: pd.DataFrame, seasons:
                          f"before it (at least {MIN_HISTORY_DAYS} are needed)")
         else:
             try:
-                risk, _, clim = fit_models(site, table[known_before.to_numpy()])
+                risk, _, clim = fit_models(spec, table[known_before.to_numpy()])
             except (ValueError, RuntimeError) as exc:
                 notes.append(f"season {s}: no forecast, the model could not be fitted on the data "
                              f"known before it ({exc})")
@@ -115,24 +111,23 @@ def walk_forward(site: Site, table: pd.DataFrame, totals: pd.DataFrame, seasons:
             block["outcome"] = np.where(np.isnan(y[in_season]), np.nan, y[in_season] >= k)
             block["climatology"] = c[name].to_numpy() if c is not None else np.nan
             block["persistence"] = per[name].to_numpy()
-            block["warned"] = block["probability"] >= warn_at.get(name, 0.5)
+            block["warned"] = block["probability"] >= thresholds.at(name)
             parts.append(block)
     forecasts = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame()
-    exceedances = first_exceedances(totals, site, seasons)
-    scores = season_scores(forecasts, exceedances, names, warn_at)
+    exceedances = first_exceedances(totals, spec, seasons)
+    scores = season_scores(forecasts, exceedances, names, thresholds)
     overall = overall_scores(forecasts, names)
     return BacktestResult(forecasts, scores, overall, exceedances, notes)
 
 
-def first_exceedances(totals: pd.DataFrame, site: Site, seasons: Sequence[int]) -> pd.DataFrame:
+def first_exceedances(totals: pd.DataFrame, spec: SiteSpec, seasons: Sequence[int]) -> pd.DataFrame:
     """The first sample of each season that met each level (local date), NaT if none."""
-    scheme = site.alert_scheme()
     rows = []
     if len(totals):
-        local = totals["sampled_at"].dt.tz_convert(site.timezone).dt.tz_localize(None)
-        season = season_of(local, site.model.season_start_month)
+        local = totals["sampled_at"].dt.tz_convert(spec.timezone).dt.tz_localize(None)
+        season = season_of(local, spec.season_start_month)
     for s in seasons:
-        for lvl in scheme.levels:
+        for lvl in spec.scheme.levels:
             first = pd.NaT
             if len(totals):
                 hit = (season == s) & (meets(totals, lvl) == 1.0)
@@ -160,8 +155,7 @@ def _scores(block: pd.DataFrame, source: str, warn_at: float | None,
     elif events == n:
         notes.append("every labelled day exceeded: ROC AUC not defined")
     clim = block["climatology"].to_numpy(dtype=float)
-    ref = brier_score(clim[labelled], o[labelled]) if n else float("nan")
-    out["brier_skill"] = (1.0 - out["brier"] / ref) if ref and ref == ref and ref > 0 else float("nan")
+    out["brier_skill"] = brier_skill_score(p, o, clim) if n else float("nan")
     if source != "climatology" and warn_at is not None:
         out.update(contingency(p, o, warn_at))
         warned = (p >= warn_at) & ~np.isnan(p)
@@ -179,7 +173,7 @@ def _scores(block: pd.DataFrame, source: str, warn_at: float | None,
 
 
 def season_scores(forecasts: pd.DataFrame, exceedances: pd.DataFrame, names: list[str],
-                  warn_at: dict[str, float] | None = None) -> pd.DataFrame:
+                  thresholds: Thresholds | None = None) -> pd.DataFrame:
     """Scores per season, level and source (see :class:`BacktestResult`)."""
     rows = []
     if forecasts.empty:
@@ -187,7 +181,7 @@ def season_scores(forecasts: pd.DataFrame, exceedances: pd.DataFrame, names: lis
     for (s, level), block in forecasts.groupby(["season", "level"], sort=True):
         ex = exceedances[(exceedances["season"] == s) & (exceedances["level"] == level)]
         first = ex["first_exceedance"].iloc[0] if len(ex) else None
-        threshold = (warn_at or {}).get(level, 0.5)
+        threshold = (thresholds or Thresholds({})).at(level)
         for source in SOURCES:
             rows.append({"season": s, "level": level, "source": source,
                          **_scores(block, source, threshold, first)})
@@ -211,9 +205,8 @@ def overall_scores(forecasts: pd.DataFrame, names: list[str], n_boot: int = 200,
                 o = frame["outcome"].to_numpy(dtype=float)
                 c = frame["climatology"].to_numpy(dtype=float)
                 keep = ~np.isnan(p) & ~np.isnan(o) & ~np.isnan(c)
-                bs = brier_score(p[keep], o[keep])
-                ref = brier_score(c[keep], o[keep])
-                return bs, (1 - bs / ref) if ref > 0 else float("nan"), roc_auc(p[keep], o[keep])
+                return (brier_score(p[keep], o[keep]), brier_skill_score(p[keep], o[keep], c[keep]),
+                        roc_auc(p[keep], o[keep]))
 
             point = stats_of(f)
             boot = np.array([stats_of(pd.concat([by_season[s] for s in

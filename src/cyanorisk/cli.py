@@ -1,25 +1,26 @@
-"""The command line. Thin: it parses arguments, calls the modules and prints their results.
+"""The command line. Thin: it parses arguments, calls the site pipeline or the service, and
+prints their results.
 
 Errors are one sentence naming the file (and line and column where there is one) on stderr,
-with a non-zero exit status: 2 for a configuration problem, 1 for a data problem.
+with a non-zero exit status (see :mod:`cyanorisk.errors`). Nothing heavy is imported before a
+command runs, so ``--help`` and ``--version`` answer at once.
 """
 
 from __future__ import annotations
 
-import argparse
-import json
 import sys
-from collections.abc import Iterable, Iterator
+from collections.abc import Callable, Iterable, Iterator
 from pathlib import Path
-from typing import TypeVar
+from typing import TYPE_CHECKING, TypeVar
 
 from cyanorisk import __version__
-from cyanorisk.backtest import BacktestError
-from cyanorisk.config import Config, ConfigError, load_config
-from cyanorisk.ingest.quality import IngestError
-from cyanorisk.model import ModelFileError
-from cyanorisk.service.jobs import RunLockedError
-from cyanorisk.service.store import StoreError
+from cyanorisk.errors import EXIT_DATA, ConfigError, CyanoriskError
+
+if TYPE_CHECKING:
+    import argparse
+
+    from cyanorisk.config import Config
+    from cyanorisk.pipeline import SitePipeline
 
 T = TypeVar("T")
 
@@ -38,159 +39,145 @@ def progress(items: Iterable[T], total: int, label: str) -> Iterator[T]:
 
 
 def _config(args: argparse.Namespace, check_files: bool = True) -> Config:
+    from cyanorisk.config import load_config
+
     return load_config(args.config, check_files=check_files)
 
 
-def _ingest_all(config: Config) -> list[tuple]:
-    from cyanorisk.ingest.sites import ingest_site_samples, ingest_site_weather, write_site_ingest
+def each_site(config: Config, work: Callable[[SitePipeline], None], label: str = "") -> int:
+    """Do ``work`` for every site, one after another; a site that fails is told in one sentence
+    on stderr and the others go on. Returns the exit status (the worst of the sites')."""
+    from cyanorisk.pipeline import SitePipeline
 
-    done = []
-    for site in progress(config.sites, len(config.sites), "ingest"):
-        weather = ingest_site_weather(config, site)
-        samples = ingest_site_samples(config, site, weather.meta)
-        done.append((weather, samples))
-    return [(w, s, [str(p) for p in write_site_ingest(config, w, s)]) for w, s in done]
+    status = 0
+    sites = config.sites
+    for site in progress(sites, len(sites), label) if label else sites:
+        try:
+            work(SitePipeline.of(config, site))
+        except CyanoriskError as exc:
+            print(f"cyanorisk: {exc}", file=sys.stderr)
+            status = max(status, exc.exit_status)
+    return status
 
 
 def cmd_ingest(args: argparse.Namespace) -> int:
     """Ingest every site's weather and lab files; write clean tables and rejects; summarise."""
-    from cyanorisk.report.ingest_summary import summary_data, summary_text
+    import json
 
-    results = _ingest_all(_config(args))
+    from cyanorisk.report.ingest_summary import summary_text
+
+    summaries: list[dict] = []
+    status = each_site(_config(args), lambda p: summaries.append(p.clean(reuse=not args.force).summary),
+                       "ingest")
     if args.json:
-        print(json.dumps([summary_data(w, s, out) for w, s, out in results], indent=2, default=str))
+        print(json.dumps(summaries, indent=2, default=str))
     else:
-        for w, s, out in results:
-            print(summary_text(w, s, out))
-    return 0
+        for summary in summaries:
+            print(summary_text(summary))
+    return status
+
+
+def _label_balance_lines(pipeline: SitePipeline, table) -> list[str]:
+    from cyanorisk.training import label_balance
+
+    return [f"  {col}: {c['1']:,} reached, {c['0']:,} not reached, {c['missing']:,} without a "
+            "sample in the window"
+            for col, c in label_balance(table, pipeline.spec.horizon_days).items()]
 
 
 def cmd_features(args: argparse.Namespace) -> int:
-    """Ingest, build the daily drivers, align the lab results: write the training table."""
-    from cyanorisk.atomic import write_group
-    from cyanorisk.ingest.sites import site_paths
-    from cyanorisk.training import label_balance, site_training_table
-
-    config = _config(args)
-    for weather, samples, _ in _ingest_all(config):
-        site = weather.site
-        table = site_training_table(site, weather.data, samples.totals if samples else None)
-        target = site_paths(config, site.id)["training"]
-        writers = {target: lambda tmp, t=table: t.to_parquet(tmp, engine="pyarrow")}
-        if args.csv:
-            writers[target.with_suffix(".csv")] = lambda tmp, t=table: t.to_csv(tmp)
-        written = write_group(writers)
-        print(f"{site.name} ({site.id}): training table of {table.shape[0]:,} issue days x "
-              f"{table.shape[1]} columns")
-        for col, counts in label_balance(table).items():
-            print(f"  {col}: {counts['1']:,} reached, {counts['0']:,} not reached, "
-                  f"{counts['missing']:,} without a sample in the window")
+    """Build the daily drivers, align the lab results: write the training table."""
+    def work(pipeline: SitePipeline) -> None:
+        table = pipeline.training_table()
+        written = pipeline.write_training_table(table, csv=args.csv)
+        print(f"{pipeline.spec.name} ({pipeline.spec.site_id}): training table of "
+              f"{table.shape[0]:,} issue days x {table.shape[1]} columns")
+        print("\n".join(_label_balance_lines(pipeline, table)))
         for path in written:
             print(f"  wrote {path}")
-    return 0
+
+    return each_site(_config(args), work)
 
 
-def _training(config: Config):
-    """Ingest every site and build its training table: (weather, samples, table) per site."""
-    from cyanorisk.training import site_training_table
-
-    out = []
-    for weather, samples, _ in _ingest_all(config):
-        table = site_training_table(weather.site, weather.data,
-                                    samples.totals if samples else None)
-        out.append((weather, samples, table))
-    return out
-
-
-def cmd_train(args: argparse.Namespace, prepared: list | None = None) -> int:
+def cmd_train(args: argparse.Namespace) -> int:
     """Fit each site's risk model, save it under models/, print its model card."""
     from cyanorisk.report.modelcard import model_card_text
-    from cyanorisk.reporting import save_models
-    from cyanorisk.training import fit_site
 
-    config = _config(args)
-    for weather, _, table in prepared or _training(config):
-        fitted = fit_site(weather.site, table, cross_validation=not getattr(args, "no_cv", False))
-        print(model_card_text(fitted.card, str(save_models(config, fitted))))
-    return 0
+    def work(pipeline: SitePipeline) -> None:
+        models, path = pipeline.train(cross_validation=not args.no_cv)
+        print(model_card_text(models.card, str(path)))
+
+    return each_site(_config(args), work)
 
 
-def cmd_report(args: argparse.Namespace, prepared: list | None = None) -> int:
+def _report(pipeline: SitePipeline, as_of) -> None:
+    assessment = pipeline.assess(as_of)
+    paths = pipeline.write_report(assessment)
+    print(f"{pipeline.spec.name}: {assessment.headline}")
+    for p in paths:
+        print(f"  wrote {p}")
+
+
+def cmd_report(args: argparse.Namespace) -> int:
     """Write each site's daily report (HTML, JSON, text) under reports/."""
-    import pandas as pd
-
-    from cyanorisk.reporting import site_report, write_report
-
-    config = _config(args)
-    as_of = pd.Timestamp(args.as_of) if getattr(args, "as_of", None) else None
-    for weather, samples, *_ in prepared or _ingest_all(config):
-        assessment = site_report(config, weather, samples, as_of)
-        paths = write_report(config, assessment)
-        print(f"{weather.site.name}: {assessment.content['headline']}")
-        for p in paths:
-            print(f"  wrote {p}")
-    return 0
+    return each_site(_config(args), lambda p: _report(p, args.as_of))
 
 
 def cmd_backtest(args: argparse.Namespace) -> int:
     """Walk-forward backtest of each site over past seasons; write forecasts, scores, page."""
-    from cyanorisk.evaluation import run_backtest, write_backtest
+    return each_site(_config(args), lambda p: _backtest(p, args.seasons))
 
-    config = _config(args)
-    for weather, samples, table in _training(config):
-        site = weather.site
-        totals = samples.totals if samples else table.iloc[0:0]
-        result, span = run_backtest(config, site, table, totals, args.seasons, progress)
-        paths = write_backtest(config, site, result, totals, span)
-        print(f"{site.name} ({site.id}): backtest of seasons {span}")
-        overall = result.overall[result.overall["source"] == "model"]
-        for _, r in overall.iterrows():
-            clim = result.overall[(result.overall["source"] == "climatology")
-                                  & (result.overall["level"] == r["level"])].iloc[0]
-            print(f"  {r['level']}: ROC AUC {r['roc_auc']:.3f} [{r['roc_auc_low']:.3f}, "
-                  f"{r['roc_auc_high']:.3f}] (climatology {clim['roc_auc']:.3f}); Brier skill "
-                  f"vs climatology {r['brier_skill']:.3f} [{r['brier_skill_low']:.3f}, "
-                  f"{r['brier_skill_high']:.3f}]")
-        quiet = result.scores[(result.scores["source"] == "model") & (result.scores["events"] == 0)]
-        for _, r in quiet.iterrows():
-            print(f"  season {r['season']}: no exceedance of {r['level']}")
-        for note in result.notes:
-            print(f"  note: {note}")
-        for p in paths:
-            print(f"  wrote {p}")
-    return 0
+
+def _backtest(pipeline: SitePipeline, seasons: str | None) -> None:
+    run = pipeline.backtest(seasons, progress)
+    paths = pipeline.write_backtest(run)
+    result = run.result
+    print(f"{pipeline.spec.name} ({pipeline.spec.site_id}): backtest of seasons {run.span}")
+    overall = result.overall[result.overall["source"] == "model"]
+    for _, r in overall.iterrows():
+        clim = result.overall[(result.overall["source"] == "climatology")
+                              & (result.overall["level"] == r["level"])].iloc[0]
+        print(f"  {r['level']}: ROC AUC {r['roc_auc']:.3f} [{r['roc_auc_low']:.3f}, "
+              f"{r['roc_auc_high']:.3f}] (climatology {clim['roc_auc']:.3f}); Brier skill "
+              f"vs climatology {r['brier_skill']:.3f} [{r['brier_skill_low']:.3f}, "
+              f"{r['brier_skill_high']:.3f}]")
+    quiet = result.scores[(result.scores["source"] == "model") & (result.scores["events"] == 0)]
+    for _, r in quiet.iterrows():
+        print(f"  season {r['season']}: no exceedance of {r['level']}")
+    for note in result.notes:
+        print(f"  note: {note}")
+    for p in paths:
+        print(f"  wrote {p}")
 
 
 def cmd_tune(args: argparse.Namespace) -> int:
     """Tune each level's warning threshold on a backtest; write the thresholds file."""
-    from cyanorisk.evaluation import run_backtest, run_tune, write_tuning
-
     if (args.miss_cost is None) == (args.target_hit_rate is None):
         raise ConfigError(args.config, None, "give either --miss-cost or --target-hit-rate")
-    config = _config(args)
-    for weather, samples, table in _training(config):
-        site = weather.site
-        totals = samples.totals if samples else table.iloc[0:0]
-        result, span = run_backtest(config, site, table, totals, args.seasons, progress)
-        choices, problems = run_tune(site, result, miss_cost=args.miss_cost,
-                                     target_hit_rate=args.target_hit_rate)
-        print(f"{site.name} ({site.id}): thresholds tuned on seasons {span}")
-        for c in choices:
-            print(f"  {c.level}: {c.rule}")
-            cols = ["threshold", "hits", "misses", "false_alarms", "correct_negatives", "hit_rate",
-                    "false_alarm_ratio", "mean_lead_time_days"]
-            rows = c.table[c.table["threshold"].isin([0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9,
-                                                      c.threshold])]
-            print("    " + rows[cols].to_string(index=False, float_format=lambda v: f"{v:.2f}")
-                  .replace("\n", "\n    "))
-            lo, hi = c.spread()
-            print(f"    chosen: warn at {c.threshold:.2f} (bootstrap over seasons: {lo:.2f} to {hi:.2f})")
-        for problem in problems:
-            print(f"  {problem}")
-        if choices:
-            for p in write_tuning(config, site, choices, span):
-                print(f"  wrote {p}")
-    return 0
+    return each_site(_config(args), lambda p: _tune(p, args))
+
+
+def _tune(pipeline: SitePipeline, args: argparse.Namespace) -> None:
+    run = pipeline.backtest(args.seasons, progress)
+    choices, problems = pipeline.tune(run, miss_cost=args.miss_cost,
+                                      target_hit_rate=args.target_hit_rate)
+    print(f"{pipeline.spec.name} ({pipeline.spec.site_id}): thresholds tuned on seasons "
+          f"{run.span}")
+    for c in choices:
+        print(f"  {c.level}: {c.rule}")
+        cols = ["threshold", "hits", "misses", "false_alarms", "correct_negatives", "hit_rate",
+                "false_alarm_ratio", "mean_lead_time_days"]
+        rows = c.table[c.table["threshold"].isin([0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9,
+                                                  c.threshold])]
+        print("    " + rows[cols].to_string(index=False, float_format=lambda v: f"{v:.2f}")
+              .replace("\n", "\n    "))
+        lo, hi = c.spread()
+        print(f"    chosen: warn at {c.threshold:.2f} (bootstrap over seasons: {lo:.2f} to {hi:.2f})")
+    for problem in problems:
+        print(f"  {problem}")
+    if choices:
+        for p in pipeline.write_tuning(choices, run.span):
+            print(f"  wrote {p}")
 
 
 def cmd_serve(args: argparse.Namespace) -> int:
@@ -248,7 +235,7 @@ def cmd_run(args: argparse.Namespace) -> int:
               f"{o.level or o.status}); {o.reason}")
         if o.notification:
             print(f"  notification: {o.notification}")
-    return 0 if result.status == "ok" else 1
+    return 0 if result.status == "ok" else EXIT_DATA
 
 
 def cmd_check(args: argparse.Namespace) -> int:
@@ -260,7 +247,7 @@ def cmd_check(args: argparse.Namespace) -> int:
 
     config = _config(args)
     for site in config.sites:
-        dialect = config.dialects[site.weather.dialect]
+        dialect = site.weather.parsing
         print(f"{site.name} ({site.id}): {len(site.weather.files)} weather file(s), "
               f"dialect '{site.weather.dialect}', zone {site.timezone}")
         for path in site.weather.files:
@@ -270,7 +257,7 @@ def cmd_check(args: argparse.Namespace) -> int:
             print(f"  {path.name}: {len(plan)} variable column(s)"
                   + (f", ignored {', '.join(ignored)}" if ignored else "") + f" ({notes})")
         if site.samples is not None:
-            layout = config.layouts[site.samples.layout]
+            layout = site.samples.parsing
             print(f"  {len(site.samples.files)} lab file(s), layout '{site.samples.layout}' "
                   f"({layout.shape})")
             for path in site.samples.files:
@@ -286,7 +273,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
     training, and the report for the last day."""
     from cyanorisk.demo import write_demo
     from cyanorisk.report.ingest_summary import summary_text
-    from cyanorisk.training import label_balance, site_training_table
+    from cyanorisk.report.modelcard import model_card_text
 
     config = _config(args, check_files=False)
     if config.demo is None:
@@ -295,22 +282,21 @@ def cmd_demo(args: argparse.Namespace) -> int:
     files = write_demo(config.demo.out_dir, years, config.demo.seed)
     print(f"demo: wrote {len(files.weather)} weather export(s) and {len(files.samples)} lab "
           f"sheet(s) for Tallowbark Reservoir ({years} years) under {config.demo.out_dir}")
-    config = _config(args)
-    prepared = []
-    for weather, samples, outputs in _ingest_all(config):
-        print(summary_text(weather, samples, outputs))
-        table = site_training_table(weather.site, weather.data, samples.totals if samples else None)
-        balance = label_balance(table, weather.site.model.horizon_days)
-        print(f"  training table: {table.shape[0]:,} issue days x {table.shape[1]} columns; "
-              + "; ".join(f"{k}: {v['1']:,} reached, {v['0']:,} not" for k, v in balance.items()))
-        prepared.append((weather, samples, table))
-    cmd_train(args, prepared)
-    args.as_of = None
-    cmd_report(args, prepared)
-    return 0
+    def work(pipeline: SitePipeline) -> None:
+        print(summary_text(pipeline.clean().summary))
+        table = pipeline.training_table()
+        print(f"  training table: {table.shape[0]:,} issue days x {table.shape[1]} columns")
+        print("\n".join(_label_balance_lines(pipeline, table)))
+        models, path = pipeline.train(table)
+        print(model_card_text(models.card, str(path)))
+        _report(pipeline, None)
+
+    return each_site(_config(args), work)
 
 
 def build_parser() -> argparse.ArgumentParser:
+    import argparse
+
     parser = argparse.ArgumentParser(
         prog="cyanorisk",
         description="Bloom-risk early warning for lakes and reservoirs.")
@@ -331,6 +317,8 @@ def build_parser() -> argparse.ArgumentParser:
     p = command("ingest", cmd_ingest, "clean every site's weather and lab files; write them and "
                                       "the rejects")
     p.add_argument("--json", action="store_true", help="print the summary as JSON")
+    p.add_argument("--force", action="store_true", help="ingest again even when no raw file "
+                                                        "changed")
     p = command("features", cmd_features, "build the daily drivers and the training table")
     p.add_argument("--csv", action="store_true", help="also write the table as CSV")
     p = command("train", cmd_train, "fit each site's risk model and print its model card")
@@ -362,18 +350,26 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def main(argv: list[str] | None = None) -> int:
+    argv = sys.argv[1:] if argv is None else argv
+    if argv == ["--version"]:  # answered before anything else is imported
+        print(f"cyanorisk {__version__}")
+        return 0
     args = build_parser().parse_args(argv)
     try:
         return args.func(args)
-    except ConfigError as exc:
+    except CyanoriskError as exc:
         print(f"cyanorisk: {exc}", file=sys.stderr)
-        return 2
-    except (IngestError, ModelFileError, BacktestError, RunLockedError, StoreError) as exc:
-        print(f"cyanorisk: {exc}", file=sys.stderr)
-        return 1
+        return exc.exit_status
     except OSError as exc:
         print(f"cyanorisk: {exc.filename or ''}: {exc.strerror or exc}", file=sys.stderr)
-        return 1
+        return EXIT_DATA
+    except Exception as exc:  # a store or library error: one sentence, not a traceback
+        from cyanorisk.service.store import StoreError
+
+        if isinstance(exc, StoreError):
+            print(f"cyanorisk: {exc}", file=sys.stderr)
+            return EXIT_DATA
+        raise
 
 
 if __name__ == "__main__":

@@ -27,6 +27,8 @@ from typing import Any
 
 import pandas as pd
 
+from cyanorisk.drivers import DEFAULT_DRIVERS, lookup
+from cyanorisk.errors import ConfigError
 from cyanorisk.features import FeatureSettings
 from cyanorisk.ingest.dialects import (
     DATE_ORDERS,
@@ -34,34 +36,39 @@ from cyanorisk.ingest.dialects import (
     STAMP_MARKS,
     ColumnSpec,
     WeatherDialect,
-    zone_offset,
+)
+from cyanorisk.ingest.quality import (
+    BAD_ROW_POLICIES,
+    DEFAULT_BAD_ROWS,
+    DEFAULT_DUPLICATES,
+    DEFAULT_OFF_GRID,
+    DUPLICATE_POLICIES,
+    OFF_GRID_POLICIES,
 )
 from cyanorisk.ingest.samples import SampleLayout, Taxon
-from cyanorisk.ingest.weather import BAD_ROW_POLICIES, DUPLICATE_POLICIES, OFF_GRID_POLICIES
 from cyanorisk.levels import SCHEMES, Scheme, custom_scheme
 from cyanorisk.levels import scheme as preset_scheme
-from cyanorisk.units import conversion
+from cyanorisk.spec import (
+    DEFAULT_AUTHORITY,
+    DEFAULT_HORIZON_DAYS,
+    DEFAULT_LAB_DELAY_DAYS,
+    DEFAULT_SEASON_START_MONTH,
+    SiteSpec,
+)
 
 EMBEDDED_DEMO = "demo.toml"
 USES = ("drinking", "recreation")
 
-
-class ConfigError(ValueError):
-    """A configuration problem, told in one sentence naming the file and the key."""
-
-    def __init__(self, path: object, key: str | None, message: str) -> None:
-        self.path, self.key = str(path), key
-        where = f"{path}: key '{key}'" if key else f"{path}"
-        super().__init__(f"{where}: {message}")
+__all__ = ["Config", "ConfigError", "Site", "embedded_demo_text", "load_config"]
 
 
 @dataclass(frozen=True)
 class IngestSettings:
     """Policies of the cleaning steps (see :func:`cyanorisk.ingest.read_weather`)."""
 
-    bad_rows: str = "stop"
-    off_grid: str = "aggregate"
-    duplicates: str = "last"
+    bad_rows: str = DEFAULT_BAD_ROWS
+    off_grid: str = DEFAULT_OFF_GRID
+    duplicates: str = DEFAULT_DUPLICATES
 
 
 @dataclass(frozen=True)
@@ -74,28 +81,25 @@ class WeatherSource:
     """Files matched, in pattern order and sorted by name within a pattern."""
     dialect: str
     period: tuple[str | None, str | None] | None = None
+    parsing: WeatherDialect = field(default_factory=WeatherDialect)
+    """The dialect named by ``dialect``."""
 
 
 @dataclass(frozen=True)
 class ModelSettings:
     """How a site's risk model is fitted and evaluated."""
 
-    horizon_days: int = 7
-    """Forecast horizon [d]: the probability of reaching each level within this many days."""
+    horizon_days: int = DEFAULT_HORIZON_DAYS
+    """Forecast horizon [d]: the probability of reaching each level within this many days
+    (1 to 14)."""
     drivers: tuple[str, ...] | None = None
-    """Drivers to use; None uses the default set of :mod:`cyanorisk.model`."""
-    season_start_month: int = 7
+    """Drivers to use; None uses the default set of :mod:`cyanorisk.drivers`."""
+    season_start_month: int = DEFAULT_SEASON_START_MONTH
     """First month of a bloom season (7 = July, for the southern hemisphere; 1 in the north)."""
     stale_weather_days: float = 2.0
     """A report whose last weather reading is older than this says 'insufficient data'."""
     stale_sample_days: float = 45.0
     """A report whose last known sample is older than this says 'insufficient data'."""
-
-    def __post_init__(self) -> None:
-        if not 1 <= self.horizon_days <= 14:
-            raise ValueError("horizon_days must be between 1 and 14")
-        if not 1 <= self.season_start_month <= 12:
-            raise ValueError("season_start_month must be a month number, 1 to 12")
 
 
 @dataclass(frozen=True)
@@ -105,8 +109,12 @@ class SampleSource:
     patterns: tuple[str, ...]
     files: tuple[Path, ...]
     layout: str
-    lab_delay_days: float = 3.0
+    lab_delay_days: float = DEFAULT_LAB_DELAY_DAYS
     """Days from sampling until a result is known, when the lab gives no reported date."""
+    parsing: SampleLayout | None = None
+    """The layout named by ``layout``."""
+    taxa: dict[str, Taxon] = field(default_factory=dict)
+    """The taxon table: which taxa are cyanobacteria and which are toxin producers."""
 
 
 @dataclass(frozen=True)
@@ -127,16 +135,31 @@ class Site:
     measures: tuple[str, ...] | None = None
     """Which of the scheme's measures to use (None: all the samples carry)."""
     model: ModelSettings = field(default_factory=ModelSettings)
-    authority: str = "the local water authority"
+    authority: str = DEFAULT_AUTHORITY
     """Who decides advisories, closures and treatment changes (named in every report)."""
 
     custom_scheme: Scheme | None = None
     """A scheme defined under [schemes] in the configuration, when ``scheme`` names one."""
+    ingest: IngestSettings = field(default_factory=IngestSettings)
+    """The installation's cleaning policies."""
+    spec: SiteSpec | None = None
+    """What the core computes with, built once from the settings above."""
 
     def alert_scheme(self) -> Scheme:
         """The site's scheme (a preset or a custom one), restricted to its measures."""
         base = self.custom_scheme if self.custom_scheme is not None else preset_scheme(self.scheme)
         return base.using(self.measures)
+
+    def build_spec(self) -> SiteSpec:
+        """The core's specification of this site (see :class:`cyanorisk.spec.SiteSpec`)."""
+        m = self.model
+        return SiteSpec(
+            site_id=self.id, timezone=self.timezone, scheme=self.alert_scheme(), name=self.name,
+            use=self.use, authority=self.authority, features=self.drivers,
+            drivers=tuple(m.drivers) if m.drivers else DEFAULT_DRIVERS,
+            horizon_days=m.horizon_days, season_start_month=m.season_start_month,
+            lab_delay_days=self.samples.lab_delay_days if self.samples else DEFAULT_LAB_DELAY_DAYS,
+            stale_weather_days=m.stale_weather_days, stale_sample_days=m.stale_sample_days)
 
 
 @dataclass(frozen=True)
@@ -296,16 +319,18 @@ class _Reader:
         ing = self.get(raw, "ingest", dict, "", {})
         self.keys(ing, {"bad_rows", "off_grid", "duplicates"}, "ingest")
         ingest = IngestSettings(
-            bad_rows=self.choice(ing, "bad_rows", BAD_ROW_POLICIES, "ingest", "stop"),
-            off_grid=self.choice(ing, "off_grid", OFF_GRID_POLICIES, "ingest", "aggregate"),
-            duplicates=self.choice(ing, "duplicates", DUPLICATE_POLICIES, "ingest", "last"))
+            bad_rows=self.choice(ing, "bad_rows", BAD_ROW_POLICIES, "ingest", DEFAULT_BAD_ROWS),
+            off_grid=self.choice(ing, "off_grid", OFF_GRID_POLICIES, "ingest", DEFAULT_OFF_GRID),
+            duplicates=self.choice(ing, "duplicates", DUPLICATE_POLICIES, "ingest",
+                                   DEFAULT_DUPLICATES))
+        self.ingest = ingest
         dialects = {name: self.dialect(table, f"dialects.{name}")
                     for name, table in self.get(raw, "dialects", dict, "", {}).items()}
         layouts = {name: self.record(table, SampleLayout, f"sample_layouts.{name}")
                    for name, table in self.get(raw, "sample_layouts", dict, "", {}).items()}
         taxa = {name: self.record(table, Taxon, f"taxa.{name}")
                 for name, table in self.get(raw, "taxa", dict, "", {}).items()}
-        self.layouts = layouts
+        self.layouts, self.taxa = layouts, taxa
         self.schemes = {name: self.custom(table, name)
                         for name, table in self.get(raw, "schemes", dict, "", {}).items()}
         sites_raw = self.get(raw, "sites", list, "")
@@ -442,16 +467,6 @@ class _Reader:
             coerce_year=self.get(table, "coerce_year", int, where, None),
         )
         try:
-            zone_offset(kwargs["stamp_zone"])
-        except ValueError as exc:
-            raise self.fail(f"{where}.stamp_zone", str(exc)) from None
-        for col, spec in columns.items():
-            if spec.unit is not None and spec.unit.lower() not in ("compass", "deg"):
-                try:
-                    conversion(spec.unit)
-                except KeyError as exc:
-                    raise self.fail(f"{where}.columns.{col}.unit", exc.args[0]) from None
-        try:
             return WeatherDialect(**kwargs)
         except (ValueError, KeyError) as exc:
             raise self.fail(where, str(exc.args[0] if exc.args else exc)) from None
@@ -499,7 +514,8 @@ class _Reader:
             s_patterns, s_files = self.files(self.get(sm, "files", list, sk), f"{sk}.files",
                                              check_files)
             delay = self.typed(sm.get("lab_delay_days", 3.0), float, f"{sk}.lab_delay_days")
-            samples = SampleSource(s_patterns, s_files, layout, delay)
+            samples = SampleSource(s_patterns, s_files, layout, delay, self.layouts[layout],
+                                   self.taxa)
         drivers = self.record(self.get(table, "drivers", dict, where, {}), FeatureSettings,
                               f"{where}.drivers")
         alerts = self.get(table, "alerts", dict, where, {})
@@ -514,15 +530,24 @@ class _Reader:
                 (custom or preset_scheme(scheme)).using(measures)
             except ValueError as exc:
                 raise self.fail(f"{where}.alerts.measures", str(exc)) from None
-        return Site(
+        model = self.record(self.get(table, "model", dict, where, {}), ModelSettings,
+                            f"{where}.model")
+        for name in model.drivers or ():
+            if lookup(name) is None:
+                raise self.fail(f"{where}.model.drivers", f"{name!r} is not a driver of the "
+                                f"glossary; the defaults are {', '.join(DEFAULT_DRIVERS)}")
+        site = Site(
             id=self.get(table, "id", str, where), name=self.get(table, "name", str, where),
             timezone=tz, use=self.choice(table, "use", USES, where, "drinking"),
             interval=interval,
-            weather=WeatherSource(tuple(patterns), tuple(files), dialect, period),
+            weather=WeatherSource(tuple(patterns), tuple(files), dialect, period, dialects[dialect]),
             samples=samples, drivers=drivers, scheme=scheme, measures=measures, custom_scheme=custom,
-            model=self.record(self.get(table, "model", dict, where, {}), ModelSettings,
-                              f"{where}.model"),
-            authority=self.get(table, "authority", str, where, "the local water authority"))
+            model=model, authority=self.get(table, "authority", str, where, DEFAULT_AUTHORITY),
+            ingest=self.ingest)
+        try:
+            return dataclasses.replace(site, spec=site.build_spec())
+        except ValueError as exc:
+            raise self.fail(f"{where}.model", str(exc)) from None
 
     def _date(self, table: dict, key: str, where: str) -> str | None:
         value = table.get(key)

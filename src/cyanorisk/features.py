@@ -5,11 +5,12 @@ issue hour on that day): a window of N days is the N days that end at the issue 
 are computed with cumulative sums over the regular grid, so a 20-year half-hourly series takes
 well under a second.
 
-Sums over a window (degree-days, wind run, solar energy, calm hours) are the window's mean over
-its usable values times its length; rain, an accumulation, is the plain sum of the values
-recorded (a gap is never guessed as rain or as dry). Each window's coverage is reported as the
-share of good, filled and missing values; a window whose good share is below the configured
-minimum gives NaN, never a guess.
+Which drivers exist, their names, units and reductions are the glossary's
+(:mod:`cyanorisk.drivers`). Sums over a window (degree-days, wind run, solar energy, calm
+hours) are the window's mean over its usable values times its length; rain, an accumulation,
+is the plain sum of the values recorded (a gap is never guessed as rain or as dry). Each
+window's coverage is reported as the share of good, filled and missing values; a window whose
+good share is below the configured minimum gives NaN, never a guess.
 """
 
 from __future__ import annotations
@@ -19,6 +20,9 @@ from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
+
+from cyanorisk.drivers import GLOSSARY, Driver, Reducer
+from cyanorisk.timeofday import parse_hhmm
 
 SECONDS_PER_DAY = 86_400.0
 
@@ -107,7 +111,7 @@ class FeatureSettings:
     """What the driver table holds. Defaults are common practice, no source, except where said."""
 
     issue_time: str = "06:00"
-    """Local time of day at which the daily forecast is issued."""
+    """Local time of day (HH:MM) at which the daily forecast is issued."""
     base_temps_c: tuple[float, ...] = (15.0, 20.0)
     """Degree-day bases [degC]; Microcystis is severely limited below about 15 degC
     (Robarts & Zohary 1987)."""
@@ -115,7 +119,7 @@ class FeatureSettings:
     wind_run_windows: tuple[int, ...] = (1, 3, 7)
     calm_windows: tuple[int, ...] = (3, 7)
     calm_threshold_ms: float = 2.0
-    """Below this speed the surface is calm enough for scums to gather: about 2-3 m/s
+    """Below this speed [m s-1] the surface is calm enough for scums to gather: about 2-3 m/s
     (Webster & Hutchinson 1994, from memory)."""
     longest_calm_window: int = 7
     rain_windows: tuple[int, ...] = (1, 3, 7, 14)
@@ -128,15 +132,20 @@ class FeatureSettings:
     """A window with a smaller share of good values gives NaN."""
 
     def __post_init__(self) -> None:
-        parts = self.issue_time.split(":")
-        if len(parts) != 2 or not all(p.isdigit() for p in parts) or int(parts[0]) > 23 \
-                or int(parts[1]) > 59:
-            raise ValueError(f"issue_time must be HH:MM, not {self.issue_time!r}")
-        if int(parts[0]) == 2:
+        hour, _ = parse_hhmm(self.issue_time)
+        if hour == 2:
             raise ValueError("issue_time must be outside 02:00-03:00, where daylight-saving "
                              "changes skip or repeat the hour")
         if not 0 < self.min_good_share <= 1:
             raise ValueError("min_good_share must be in (0, 1]")
+
+    def windows(self, family: Driver) -> tuple[int, ...]:
+        """The windows [d] a driver family is computed over."""
+        value = getattr(self, family.windows) if family.windows else ()
+        return (value,) if isinstance(value, int) else tuple(value)
+
+    def params(self, family: Driver) -> tuple[float | None, ...]:
+        return tuple(getattr(self, family.param)) if family.param else (None,)
 
 
 class _Windowed:
@@ -181,14 +190,28 @@ class _Windowed:
 
 
 def issue_instants(days: pd.DatetimeIndex | Sequence, timezone: str, issue_time: str) -> pd.DatetimeIndex:
-    """The UTC instant of the issue time on each local day."""
+    """The UTC instant of the issue time (``HH:MM``, local) on each local day."""
+    hour, minute = parse_hhmm(issue_time)
     local_days = pd.DatetimeIndex(days).tz_localize(None).normalize()
-    stamps = local_days + pd.Timedelta(issue_time + ":00" if issue_time.count(":") == 1 else issue_time)
+    stamps = local_days + pd.Timedelta(hours=hour, minutes=minute)
     return stamps.tz_localize(timezone, nonexistent="shift_forward", ambiguous=False).tz_convert("UTC")
 
 
+@dataclass
+class _Series:
+    """One weather variable ready for windows: values and masks of its quality."""
+
+    values: np.ndarray
+    usable: np.ndarray
+    """Not NaN."""
+    good: np.ndarray
+    """Read from the station (not filled)."""
+    filled: np.ndarray
+
+
 class FeatureBuilder:
-    """Builds the daily driver table of one site from its clean weather series.
+    """Builds the daily driver table of one site from its clean weather series, computing every
+    family of the driver glossary (:mod:`cyanorisk.drivers`) whose variable the site records.
 
     Parameters
     ----------
@@ -202,16 +225,15 @@ class FeatureBuilder:
         self.timezone = timezone
 
     def transform(self, weather: pd.DataFrame,
-                  days: pd.DatetimeIndex | None = None) -> pd.DataFrame:
+                  days: pd.DatetimeIndex | Sequence | None = None) -> pd.DataFrame:
         """The driver table: one row per issue day (local date), named columns with units.
 
         Parameters
         ----------
         weather : pandas.DataFrame
             Output of :func:`cyanorisk.ingest.read_weather` (UTC grid of interval starts, flags).
-        days : pandas.DatetimeIndex, optional
-            Local dates to issue for; default every day from the first day with a full 30-day
-            history... in practice every day of the series after its first day.
+        days : sequence of dates, optional
+            Local dates to issue for; default every day of the series after its first day.
         """
         s = self.settings
         if not isinstance(weather.index, pd.DatetimeIndex) or weather.index.tz is None:
@@ -224,63 +246,52 @@ class FeatureBuilder:
         days = pd.DatetimeIndex(days)
         issue = issue_instants(days, self.timezone, s.issue_time)
         # intervals [t, t + step) entirely before the issue instant
-        first = weather.index[0]
-        end = np.floor(np.asarray((issue - first) / step)).astype(np.int64)
+        end = np.floor(np.asarray((issue - weather.index[0]) / step)).astype(np.int64)
         win = _Windowed(step / pd.Timedelta(hours=1), end, len(weather))
+        series = {v: self._series(weather, v) for v in _variables() if v in weather}
         cols: dict[str, np.ndarray] = {}
-        if "air_temp_c" in weather:
-            t = weather["air_temp_c"].to_numpy(dtype=float)
-            usable, good, filled = self._quality(weather, "air_temp_c")
-            for base in s.base_temps_c:
-                excess = np.where(usable, np.maximum(t - base, 0.0), 0.0)
-                for w in s.degree_day_windows:
-                    cols[f"degree_days_{base:g}c_{w}d"] = self._mean(win, excess, usable, good, w) * w
-            for w in s.air_temp_windows:
-                cols[f"air_temp_mean_c_{w}d"] = self._mean(win, np.where(usable, t, 0.0), usable, good, w)
-            self._coverage(cols, win, "air_temp_c", good, filled, usable,
-                           sorted(set(s.degree_day_windows) | set(s.air_temp_windows)))
-        elif "air_temp_min_c" in weather and "air_temp_max_c" in weather:
+        windows_of: dict[str, set[int]] = {}
+        for family in GLOSSARY:
+            if family.variable not in series:
+                continue
+            for param in s.params(family):
+                for w in s.windows(family):
+                    cols[family.name(w, param)] = self._reduce(family, series[family.variable],
+                                                               param, w, win)
+            windows_of.setdefault(family.variable, set()).update(s.windows(family))
+        if "air_temp_c" not in weather and {"air_temp_min_c", "air_temp_max_c"} <= set(weather):
             self._daily_min_max(weather, win, cols)
-        if "wind_speed_ms" in weather:
-            u = weather["wind_speed_ms"].to_numpy(dtype=float)
-            if s.anemometer_height_m:
-                u = wind_at_2m(u, s.anemometer_height_m)
-            usable, good, filled = self._quality(weather, "wind_speed_ms")
-            for w in s.wind_run_windows:
-                mean = self._mean(win, np.where(usable, u, 0.0), usable, good, w)
-                cols[f"wind_run_km_{w}d"] = wind_run_km(mean, 24.0 * w)
-            calm = usable & (u < s.calm_threshold_ms)
-            for w in s.calm_windows:
-                share = self._mean(win, calm.astype(float), usable, good, w)
-                cols[f"calm_hours_{w}d"] = share * 24.0 * w
-            cols[f"longest_calm_h_{s.longest_calm_window}d"] = self._longest_run(
-                calm, win, s.longest_calm_window, good)
-            self._coverage(cols, win, "wind_speed_ms", good, filled, usable,
-                           sorted(set(s.wind_run_windows) | set(s.calm_windows)))
-        if "rain_mm" in weather:
-            r = weather["rain_mm"].to_numpy(dtype=float)
-            usable, good, filled = self._quality(weather, "rain_mm")
-            for w in s.rain_windows:
-                total = win.total(np.where(usable, r, 0.0), w)
-                cols[f"rain_mm_{w}d"] = self._gate(total, win, good, w)
-            self._coverage(cols, win, "rain_mm", good, filled, usable, list(s.rain_windows))
-        if "solar_wm2" in weather:
-            g = weather["solar_wm2"].to_numpy(dtype=float)
-            usable, good, filled = self._quality(weather, "solar_wm2")
-            for w in s.solar_windows:
-                mean = self._mean(win, np.where(usable, g, 0.0), usable, good, w)
-                cols[f"solar_mj_m2_{w}d"] = solar_energy_mj_m2(mean, 24.0 * w)
-            self._coverage(cols, win, "solar_wm2", good, filled, usable, list(s.solar_windows))
-        if "water_temp_c" in weather:
-            wt = weather["water_temp_c"].to_numpy(dtype=float)
-            usable, good, filled = self._quality(weather, "water_temp_c")
-            for w in s.water_temp_windows:
-                cols[f"water_temp_mean_c_{w}d"] = self._mean(win, np.where(usable, wt, 0.0),
-                                                             usable, good, w)
-            self._coverage(cols, win, "water_temp_c", good, filled, usable, list(s.water_temp_windows))
+        for var, windows in windows_of.items():
+            self._coverage(cols, win, var, series[var], sorted(windows))
         out = pd.DataFrame(cols, index=pd.Index(days.date, name="issue_date"))
         out.insert(0, "issue_time_utc", issue)
         return out
+
+    def _series(self, weather: pd.DataFrame, var: str) -> _Series:
+        usable, good, filled = self._quality(weather, var)
+        values = weather[var].to_numpy(dtype=float)
+        if var == "wind_speed_ms" and self.settings.anemometer_height_m:
+            values = wind_at_2m(values, self.settings.anemometer_height_m)
+        return _Series(values, usable, good, filled)
+
+    def _reduce(self, family: Driver, x: _Series, param: float | None, days: int,
+                win: _Windowed) -> np.ndarray:
+        """One driver of a family over windows of ``days`` before each issue instant."""
+        if family.condition == "excess":
+            values = np.where(x.usable, np.maximum(x.values - param, 0.0), 0.0)
+        elif family.condition == "calm":
+            calm = x.usable & (x.values < self.settings.calm_threshold_ms)
+            if family.reducer is Reducer.LONGEST_RUN:
+                return self._longest_run(calm, win, days, x.good)
+            values = calm.astype(float)
+        else:
+            values = np.where(x.usable, x.values, 0.0)
+        if family.reducer is Reducer.TOTAL:
+            return self._gate(win.total(values, days), win, x.good, days)
+        mean = self._mean(win, values, x.usable, x.good, days)
+        if family.reducer is Reducer.INTEGRAL:
+            return mean * (24.0 * days) * family.scale
+        return mean
 
     def _daily_min_max(self, weather: pd.DataFrame, win: _Windowed, cols: dict) -> None:
         """Degree-days from daily minimum and maximum only: the single-sine method per day."""
@@ -288,21 +299,20 @@ class FeatureBuilder:
         if abs(win.step_h - 24.0) > 1e-9:
             raise ValueError("air_temp_min_c / air_temp_max_c are daily values: the site's "
                              "interval must be 1 day when air_temp_c is not recorded")
-        tmin = weather["air_temp_min_c"].to_numpy(dtype=float)
-        tmax = weather["air_temp_max_c"].to_numpy(dtype=float)
-        u1, g1, f1 = self._quality(weather, "air_temp_min_c")
-        u2, g2, f2 = self._quality(weather, "air_temp_max_c")
-        usable, good = u1 & u2, g1 & g2
+        lo, hi = self._series(weather, "air_temp_min_c"), self._series(weather, "air_temp_max_c")
+        usable, good = lo.usable & hi.usable, lo.good & hi.good
+        tmin, tmax = np.where(usable, lo.values, 0.0), np.where(usable, hi.values, 0.0)
+        degree_days, air_mean = (next(d for d in GLOSSARY if d.pattern.startswith(p))
+                                 for p in ("degree_days_", "air_temp_mean_"))
         for base in s.base_temps_c:
-            dd = np.where(usable, degree_days_single_sine(np.where(usable, tmin, 0.0),
-                                                          np.where(usable, tmax, 0.0), base), 0.0)
-            for w in s.degree_day_windows:
-                cols[f"degree_days_{base:g}c_{w}d"] = self._mean(win, dd, usable, good, w) * w
-        mean = np.where(usable, (tmin + tmax) / 2.0, 0.0)
-        for w in s.air_temp_windows:
-            cols[f"air_temp_mean_c_{w}d"] = self._mean(win, mean, usable, good, w)
-        self._coverage(cols, win, "air_temp_min_max_c", good, f1 | f2, usable,
-                       sorted(set(s.degree_day_windows) | set(s.air_temp_windows)))
+            dd = np.where(usable, degree_days_single_sine(tmin, tmax, base), 0.0)
+            for w in s.windows(degree_days):
+                cols[degree_days.name(w, base)] = self._mean(win, dd, usable, good, w) * w
+        for w in s.windows(air_mean):
+            cols[air_mean.name(w)] = self._mean(win, (tmin + tmax) / 2.0, usable, good, w)
+        both = _Series(tmin, usable, good, lo.filled | hi.filled)
+        self._coverage(cols, win, "air_temp_min_max_c", both,
+                       sorted(set(s.windows(degree_days)) | set(s.windows(air_mean))))
 
     # helpers ---------------------------------------------------------------------------------
 
@@ -334,12 +344,12 @@ class FeatureBuilder:
             mean = win.total(values, days) / n_usable
         return self._gate(mean, win, good, days)
 
-    def _coverage(self, cols: dict, win: _Windowed, var: str, good: np.ndarray, filled: np.ndarray,
-                  usable: np.ndarray, windows: list[int]) -> None:
+    def _coverage(self, cols: dict, win: _Windowed, var: str, x: _Series,
+                  windows: list[int]) -> None:
         for w in windows:
             n = w * 24 / win.step_h
-            n_good, _ = win.counts(good, w)
-            n_filled, _ = win.counts(filled, w)
+            n_good, _ = win.counts(x.good, w)
+            n_filled, _ = win.counts(x.filled, w)
             cols[f"{var}_good_share_{w}d"] = n_good / n
             cols[f"{var}_filled_share_{w}d"] = n_filled / n
             cols[f"{var}_missing_share_{w}d"] = 1.0 - (n_good + n_filled) / n
@@ -355,3 +365,8 @@ class FeatureBuilder:
         rows = windows[np.clip(win.end, 0, win.n_grid)]  # n intervals before each issue instant
         longest = np.minimum(rows, np.arange(1, n + 1)).max(axis=1)  # clip runs at window start
         return self._gate(longest * win.step_h, win, good, days)
+
+
+def _variables() -> list[str]:
+    """Weather variables some driver family is computed from, in glossary order."""
+    return list(dict.fromkeys(d.variable for d in GLOSSARY if d.variable is not None))

@@ -39,20 +39,18 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-import statsmodels.api as sm
-from scipy import optimize, stats
 
 import cyanorisk
+from cyanorisk.drivers import DEFAULT_DRIVERS
+from cyanorisk.errors import ModelFileError
 
 FORMAT = "cyanorisk-model"
-FORMAT_VERSION = 1
+FORMAT_VERSION = 2
+"""Version 2: driver names of the glossary (``calm_h_7d``); version 1 files are refused with the
+advice to retrain."""
 
-DEFAULT_DRIVERS = (
-    "degree_days_20c_7d", "degree_days_15c_30d", "water_temp_mean_c_7d", "wind_run_km_3d",
-    "calm_hours_7d", "longest_calm_h_7d", "rain_mm_7d", "solar_mj_m2_7d",
-    "last_count_log10", "last_count_censored", "last_count_age_days", "season_sin", "season_cos",
-)
-"""Drivers used unless the configuration names others (all are columns of :func:`prepare`)."""
+Z_975 = 1.959963984540054
+"""The 97.5% quantile of the standard normal distribution (for 95% intervals)."""
 
 
 MIN_MISSING_FOR_INDICATOR = 20
@@ -63,8 +61,15 @@ class NotFittedError(RuntimeError):
     """The model was used before ``fit``."""
 
 
-class ModelFileError(ValueError):
-    """A model file that cannot be used: another version, altered, or not a model file."""
+def expit(x: np.ndarray) -> np.ndarray:
+    """The logistic function 1 / (1 + exp(-x)), computed without overflow for any x."""
+    x = np.asarray(x, dtype=float)
+    out = np.empty_like(x)
+    pos = x >= 0
+    out[pos] = 1.0 / (1.0 + np.exp(-x[pos]))
+    e = np.exp(x[~pos])
+    out[~pos] = e / (1.0 + e)
+    return out
 
 
 def prepare(table: pd.DataFrame) -> pd.DataFrame:
@@ -118,7 +123,7 @@ def _ordinal_nll(params: np.ndarray, Z: np.ndarray, y: np.ndarray,
     big = np.concatenate(([-np.inf], theta, [np.inf]))
     upper = big[y + 1] - eta  # F(theta_{y+1} - eta) = P(Y <= y)
     lower = big[y] - eta
-    Fu, Fl = stats.logistic.cdf(upper), stats.logistic.cdf(lower)
+    Fu, Fl = expit(upper), expit(lower)
     fu, fl = Fu * (1 - Fu), Fl * (1 - Fl)
     prob = np.clip(Fu - Fl, 1e-300, None)
     nll = -float(np.sum(np.log(prob)))
@@ -180,6 +185,8 @@ def _fit_ordinal(Z: np.ndarray, y: np.ndarray, n_cuts: int) -> _OrdinalFit:
     start = np.concatenate((np.zeros(p), [-1.0], np.zeros(n_cuts - 1)))
     x, ok = _newton(fun, start, tol=1e-8)
     if not ok:
+        from scipy import optimize  # the fallback only
+
         res = optimize.minimize(fun, start, jac=True, method="L-BFGS-B",
                                 options={"maxiter": 10_000, "gtol": 1e-9, "ftol": 1e-15})
         x, ok = res.x, res.success or np.max(np.abs(res.jac)) < 1e-4
@@ -281,8 +288,6 @@ class RiskModel:
         mean, scale = Z.mean(axis=0).to_numpy(), Z.std(axis=0, ddof=0).to_numpy()
         scale = np.where(scale > 0, scale, 1.0)
         Zs = (Z - mean) / scale
-        # levels never reached in training are merged into the highest reached one
-        self.n_levels_ = len(self.levels)
         self.classes_ = np.arange(int(present.max()) + 1)
         missing_classes = sorted(set(self.classes_) - set(present))
         if missing_classes:
@@ -330,7 +335,7 @@ class RiskModel:
         out = {}
         for k, name in enumerate(self.levels):
             if k < len(self.cuts_):
-                out[name] = 1.0 - stats.logistic.cdf(self.cuts_[k] - eta)
+                out[name] = 1.0 - expit(self.cuts_[k] - eta)
             else:  # a level never reached in training: no evidence it can be reached
                 out[name] = np.zeros(len(eta))
         return pd.DataFrame(out, index=X.index)
@@ -361,7 +366,7 @@ class RiskModel:
     def coefficients(self) -> pd.DataFrame:
         """Coefficients per driver on the original scale [per driver unit] with 95% intervals,
         and per standard deviation of the driver."""
-        z = stats.norm.ppf(0.975)
+        z = Z_975
         scale = self.scaling_.scale
         return pd.DataFrame({
             "per_unit": self.coef_ / scale,
@@ -395,7 +400,6 @@ class RiskModel:
         m.cuts_, m.classes_ = np.array(d["cuts"]), np.array(d["classes"])
         m.scaling_ = _Scaling(np.array(d["median"]), np.array(d["mean"]), np.array(d["scale"]),
                               {k: list(v) for k, v in d["indicators"].items()})
-        m.n_levels_ = len(m.levels)
         m.loglike_, m.n_train_ = float(d["loglike"]), int(d["n_train"])
         m.n_unlabelled_ = int(d["n_unlabelled"])
         m.class_counts_ = {int(k): int(v) for k, v in d["class_counts"].items()}
@@ -405,8 +409,9 @@ class RiskModel:
 class CountModel:
     """Expected cell count at the horizon: OLS on log10(largest count in the window + 1).
 
-    Prediction intervals are those of the normal linear model (t distribution, the parameter
-    covariance and the residual variance), back-transformed to cells per mL.
+    Fitted with statsmodels' OLS; prediction intervals are those of the normal linear model (t
+    distribution, the parameter covariance and the residual variance), back-transformed to cells
+    per mL. The t quantile is kept with the fit, so predicting needs numpy only.
     """
 
     def __init__(self, drivers: Sequence[str] = DEFAULT_DRIVERS, coverage: float = 0.8) -> None:
@@ -414,6 +419,9 @@ class CountModel:
         self.coverage = coverage
 
     def fit(self, X: pd.DataFrame, log10_count: np.ndarray) -> CountModel:
+        import statsmodels.api as sm
+        from scipy import stats
+
         drivers = list(self.drivers)
         _check_columns(X, drivers)
         y = np.asarray(log10_count, dtype=float)
@@ -423,10 +431,11 @@ class CountModel:
         A = sm.add_constant(Xl.fillna(pd.Series(self.median_, index=drivers)).to_numpy(),
                             has_constant="add")
         result = sm.OLS(y[keep], A).fit()
-        self.params_ = result.params
-        self.cov_ = result.cov_params()
+        self.params_ = np.asarray(result.params)
+        self.cov_ = np.asarray(result.cov_params())
         self.resid_var_ = float(result.scale)
         self.df_resid_ = float(result.df_resid)
+        self.t_quantile_ = float(stats.t.ppf(0.5 + self.coverage / 2, self.df_resid_))
         self.feature_names_in_ = drivers
         self.n_train_ = int(keep.sum())
         return self
@@ -436,11 +445,12 @@ class CountModel:
         if not hasattr(self, "params_"):
             raise NotFittedError("this CountModel is not fitted yet: call fit() first")
         _check_columns(X, self.feature_names_in_)
-        A = sm.add_constant(X[self.feature_names_in_].astype(float).fillna(
-            pd.Series(self.median_, index=self.feature_names_in_)).to_numpy(), has_constant="add")
+        values = X[self.feature_names_in_].astype(float).fillna(
+            pd.Series(self.median_, index=self.feature_names_in_)).to_numpy()
+        A = np.column_stack((np.ones(len(values)), values))
         mean = A @ self.params_
         se = np.sqrt(np.einsum("ij,jk,ik->i", A, self.cov_, A) + self.resid_var_)
-        t = stats.t.ppf(0.5 + self.coverage / 2, self.df_resid_)
+        t = self.t_quantile_
         to_cells = lambda v: np.maximum(10 ** v - 1.0, 0.0)  # noqa: E731
         return pd.DataFrame({"expected_cells_per_ml": to_cells(mean),
                              "low_cells_per_ml": to_cells(mean - t * se),
@@ -449,16 +459,18 @@ class CountModel:
     def to_dict(self) -> dict[str, Any]:
         return {"drivers": list(self.drivers), "coverage": self.coverage,
                 "median": self.median_.tolist(), "params": self.params_.tolist(),
-                "cov": np.asarray(self.cov_).tolist(), "resid_var": self.resid_var_,
-                "df_resid": self.df_resid_, "n_train": self.n_train_}
+                "cov": self.cov_.tolist(), "resid_var": self.resid_var_,
+                "df_resid": self.df_resid_, "t_quantile": self.t_quantile_,
+                "n_train": self.n_train_}
 
     @classmethod
     def from_dict(cls, d: dict[str, Any]) -> CountModel:
         m = cls(tuple(d["drivers"]), float(d["coverage"]))
         m.feature_names_in_ = list(d["drivers"])
-        m.median_, m.params_ = np.array(d["median"]), np.array(d["params"])
-        m.cov_, m.resid_var_ = np.array(d["cov"]), float(d["resid_var"])
+        m.median_, m.params_ = np.array(d["median"], dtype=float), np.array(d["params"], dtype=float)
+        m.cov_, m.resid_var_ = np.array(d["cov"], dtype=float), float(d["resid_var"])
         m.df_resid_, m.n_train_ = float(d["df_resid"]), int(d["n_train"])
+        m.t_quantile_ = float(d["t_quantile"])
         return m
 
 
@@ -522,6 +534,29 @@ class PersistenceModel:
                              for k, name in enumerate(self.levels)})
 
 
+@dataclass
+class SiteModels:
+    """A site's fitted models and its model card, as trained and as saved under models/."""
+
+    site_id: str
+    risk: RiskModel
+    count: CountModel
+    climatology: ClimatologyModel
+    card: dict[str, Any]
+    """What ``cyanorisk train`` prints: training window, counts, coefficients, skill."""
+
+    def to_dict(self) -> dict[str, Any]:
+        """The JSON-ready body of the model file."""
+        return {"site_id": self.site_id, "card": self.card, "risk": self.risk.to_dict(),
+                "count": self.count.to_dict(), "climatology": self.climatology.to_dict()}
+
+    @classmethod
+    def from_dict(cls, body: dict[str, Any]) -> SiteModels:
+        return cls(str(body["site_id"]), RiskModel.from_dict(body["risk"]),
+                   CountModel.from_dict(body["count"]),
+                   ClimatologyModel.from_dict(body["climatology"]), dict(body["card"]))
+
+
 # ---------------------------------------------------------------------------------------------
 # JSON persistence
 # ---------------------------------------------------------------------------------------------
@@ -534,20 +569,22 @@ def fingerprint(table: pd.DataFrame) -> str:
     return h.hexdigest()
 
 
-def _checksum(body: dict[str, Any]) -> str:
-    return hashlib.sha256(json.dumps(body, sort_keys=True, allow_nan=True).encode()).hexdigest()
+def _checksum(body: dict[str, Any], version: str) -> str:
+    return hashlib.sha256(json.dumps(body | {"_version": version}, sort_keys=True,
+                                     allow_nan=True).encode()).hexdigest()
 
 
-def save_bundle(path: Path, body: dict[str, Any]) -> str:
-    """The JSON text of a model bundle (with format, version and checksum)."""
+def bundle_text(models: SiteModels) -> str:
+    """The JSON text of a model file (format, version, checksum and the models)."""
+    body = models.to_dict()
     payload = {"format": FORMAT, "format_version": FORMAT_VERSION,
-               "cyanorisk_version": cyanorisk.__version__, "body": body}
-    payload["checksum"] = _checksum(payload["body"] | {"_version": payload["cyanorisk_version"]})
+               "cyanorisk_version": cyanorisk.__version__, "body": body,
+               "checksum": _checksum(body, cyanorisk.__version__)}
     return json.dumps(payload, indent=1, allow_nan=True)
 
 
-def load_bundle(path: Path) -> dict[str, Any]:
-    """Read a model bundle, refusing another version or an altered file.
+def read_bundle(path: Path) -> SiteModels:
+    """Read a model file, refusing another version, an altered file or a file of another kind.
 
     Raises
     ------
@@ -556,7 +593,7 @@ def load_bundle(path: Path) -> dict[str, Any]:
     """
     try:
         payload = json.loads(Path(path).read_text(encoding="utf-8"))
-    except (OSError, json.JSONDecodeError) as exc:
+    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
         raise ModelFileError(f"{path}: not a readable model file ({exc})") from None
     if not isinstance(payload, dict) or payload.get("format") != FORMAT:
         raise ModelFileError(f"{path}: not a cyanorisk model file")
@@ -564,9 +601,15 @@ def load_bundle(path: Path) -> dict[str, Any]:
             payload.get("cyanorisk_version") != cyanorisk.__version__:
         raise ModelFileError(f"{path}: written by cyanorisk {payload.get('cyanorisk_version')} "
                              f"(format {payload.get('format_version')}); this is cyanorisk "
-                             f"{cyanorisk.__version__}: retrain with `cyanorisk train`")
-    expected = _checksum(payload.get("body", {}) | {"_version": payload["cyanorisk_version"]})
-    if payload.get("checksum") != expected:
+                             f"{cyanorisk.__version__} (format {FORMAT_VERSION}): retrain with "
+                             "`cyanorisk train`")
+    body = payload.get("body")
+    if not isinstance(body, dict) or payload.get("checksum") != _checksum(
+            body, payload["cyanorisk_version"]):
         raise ModelFileError(f"{path}: the checksum does not match the content; the file was "
                              "altered after it was saved: retrain with `cyanorisk train`")
-    return payload["body"]
+    try:
+        return SiteModels.from_dict(body)
+    except (KeyError, TypeError, ValueError) as exc:
+        raise ModelFileError(f"{path}: the model file lacks a part or holds a wrong value "
+                             f"({type(exc).__name__}: {exc}): retrain with `cyanorisk train`") from None

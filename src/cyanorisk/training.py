@@ -1,45 +1,51 @@
-"""Training orchestration: the training table of a site, fitting its models, the model card.
+"""Training a site's models: the training table, the fit, season-blocked cross-validation and
+the model card. Pure computation on a :class:`cyanorisk.spec.SiteSpec` and tables in memory.
 
 The pieces are :class:`cyanorisk.features.FeatureBuilder`, :func:`cyanorisk.align.training_table`
-and the estimators of :mod:`cyanorisk.model`; this module puts them together per site.
+and the estimators of :mod:`cyanorisk.model`.
+
+The outcome a model learns, for level k and horizon h: 1 when a lab sample taken in the h days
+after the issue time meets level k, 0 when samples were taken then and none meets it, unknown
+(left out of fitting and scoring) when no sample was taken (:func:`cyanorisk.align.outcome_labels`).
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 import pandas as pd
 
 import cyanorisk
-from cyanorisk.align import level_slug, training_table
-from cyanorisk.config import Site
+from cyanorisk.align import level_slug
+from cyanorisk.align import training_table as align_training_table
 from cyanorisk.features import FeatureBuilder
 from cyanorisk.ingest.samples import empty_totals
 from cyanorisk.model import (
-    DEFAULT_DRIVERS,
     ClimatologyModel,
     CountModel,
     PersistenceModel,
     RiskModel,
+    SiteModels,
     fingerprint,
     ordinal_outcome,
     prepare,
 )
+from cyanorisk.spec import SiteSpec
 from cyanorisk.verify import brier_score, roc_auc
 
 
-def site_training_table(site: Site, weather: pd.DataFrame, totals: pd.DataFrame | None) -> pd.DataFrame:
-    """Drivers for every issue day of the weather record, joined with the lab results."""
-    drivers = FeatureBuilder(site.drivers, site.timezone).transform(weather)
-    if totals is None:
-        totals = empty_totals()
-    lab_delay = site.samples.lab_delay_days if site.samples else 3.0
-    return training_table(drivers, totals, site.alert_scheme(), site.id, lab_delay, site.timezone)
+def training_table(spec: SiteSpec, weather: pd.DataFrame,
+                   totals: pd.DataFrame | None) -> pd.DataFrame:
+    """Drivers for every issue day of the weather record, joined with the lab results: the last
+    count known at issue time and the outcome labels ``reach_<level>_<h>d`` (h = 1 to 14)."""
+    drivers = FeatureBuilder(spec.features, spec.timezone).transform(weather)
+    totals = empty_totals() if totals is None else totals
+    return align_training_table(drivers, totals, spec.scheme, spec.site_id, spec.lab_delay_days,
+                                spec.timezone)
 
 
-def label_balance(table: pd.DataFrame, horizon_days: int = 7) -> dict[str, dict[str, int]]:
+def label_balance(table: pd.DataFrame, horizon_days: int) -> dict[str, dict[str, int]]:
     """Counts of 1, 0 and missing outcome labels at one horizon, per level."""
     out = {}
     for col in table.columns:
@@ -56,41 +62,25 @@ def season_of(dates: pd.Series | pd.Index, start_month: int) -> np.ndarray:
     return (d.year - (d.month < start_month)).to_numpy()
 
 
-def label_columns(site: Site, horizon_days: int | None = None) -> list[str]:
-    h = horizon_days or site.model.horizon_days
-    return [f"reach_{level_slug(n)}_{h}d" for n in site.alert_scheme().names]
+def label_columns(spec: SiteSpec, horizon_days: int | None = None) -> list[str]:
+    """The outcome columns of the spec's levels at a horizon (default: the spec's)."""
+    h = horizon_days or spec.horizon_days
+    return [f"reach_{level_slug(n)}_{h}d" for n in spec.levels]
 
 
-@dataclass
-class FittedSite:
-    """A site's fitted models and the numbers for its model card."""
-
-    site: Site
-    risk: RiskModel
-    count: CountModel
-    climatology: ClimatologyModel
-    card: dict[str, Any]
-
-    def bundle(self) -> dict[str, Any]:
-        """The JSON-ready body saved under models/."""
-        return {"site_id": self.site.id, "card": self.card, "risk": self.risk.to_dict(),
-                "count": self.count.to_dict(), "climatology": self.climatology.to_dict()}
-
-
-def fit_models(site: Site, table: pd.DataFrame) -> tuple[RiskModel, CountModel, ClimatologyModel]:
+def fit_models(spec: SiteSpec, table: pd.DataFrame) -> tuple[RiskModel, CountModel, ClimatologyModel]:
     """Fit the risk, count and climatology models of a site on a training table."""
-    scheme = site.alert_scheme()
-    h = site.model.horizon_days
-    drivers = list(site.model.drivers or DEFAULT_DRIVERS)
+    h = spec.horizon_days
+    drivers = list(spec.drivers)
     X = prepare(table)
-    y = ordinal_outcome(X, label_columns(site))
-    risk = RiskModel(drivers, scheme.names, h).fit(X, y)
+    y = ordinal_outcome(X, label_columns(spec))
+    risk = RiskModel(drivers, spec.levels, h).fit(X, y)
     count = CountModel(drivers).fit(X, X[f"max_count_log10_{h}d"].to_numpy())
-    clim = ClimatologyModel(scheme.names).fit(X["issue_date"], y)
+    clim = ClimatologyModel(spec.levels).fit(X["issue_date"], y)
     return risk, count, clim
 
 
-def cross_validate(site: Site, table: pd.DataFrame) -> pd.DataFrame:
+def cross_validate(spec: SiteSpec, table: pd.DataFrame) -> pd.DataFrame:
     """Leave-one-season-out forecasts of the model and the climatology baseline.
 
     Each season's issue days are forecast by models fitted on every other season (blocks of
@@ -99,21 +89,19 @@ def cross_validate(site: Site, table: pd.DataFrame) -> pd.DataFrame:
     probability per level.
     """
     X = prepare(table)
-    y = ordinal_outcome(X, label_columns(site))
-    season = season_of(X["issue_date"], site.model.season_start_month)
-    names = site.alert_scheme().names
+    y = ordinal_outcome(X, label_columns(spec))
+    season = season_of(X["issue_date"], spec.season_start_month)
     parts = []
     for s in np.unique(season[~np.isnan(y)]):
         test = (season == s) & ~np.isnan(y)
-        train = season != s
         try:
-            risk, _, clim = fit_models(site, table[train])
+            risk, _, clim = fit_models(spec, table[season != s])
         except ValueError:  # a fold with one outcome only cannot be fitted
             continue
         p = risk.predict_proba(X[test])
         c = clim.predict_proba(X.loc[test, "issue_date"])
         part = pd.DataFrame({"season": s, "issue_date": X.loc[test, "issue_date"].to_numpy()})
-        for k, name in enumerate(names):
+        for k, name in enumerate(spec.levels):
             part[f"outcome_{k + 1}"] = (y[test] >= k + 1).astype(float)
             part[f"model_{k + 1}"] = p[name].to_numpy()
             part[f"climatology_{k + 1}"] = c[name].to_numpy()
@@ -132,26 +120,25 @@ def skill(frame: pd.DataFrame, names: list[str], prefix: str = "model") -> dict[
     return out
 
 
-def fit_site(site: Site, table: pd.DataFrame, cross_validation: bool = True) -> FittedSite:
+def fit_site(spec: SiteSpec, table: pd.DataFrame, cross_validation: bool = True) -> SiteModels:
     """Fit a site's models and assemble its model card."""
-    risk, count, clim = fit_models(site, table)
-    names = site.alert_scheme().names
+    risk, count, clim = fit_models(spec, table)
+    names = spec.levels
     X = prepare(table)
-    y = ordinal_outcome(X, label_columns(site))
+    y = ordinal_outcome(X, label_columns(spec))
     labelled = ~np.isnan(y)
     in_sample = pd.DataFrame({f"outcome_{k}": (y[labelled] >= k).astype(float)
                               for k in range(1, len(names) + 1)})
     p = risk.predict_proba(X[labelled])
     c = clim.predict_proba(X.loc[labelled, "issue_date"])
+    persistence = PersistenceModel(names).fit().predict_proba(X.loc[labelled, "last_level"])
     for k, name in enumerate(names, start=1):
         in_sample[f"model_{k}"] = p[name].to_numpy()
         in_sample[f"climatology_{k}"] = c[name].to_numpy()
-    persistence = PersistenceModel(names).fit().predict_proba(X.loc[labelled, "last_level"])
-    for k, name in enumerate(names, start=1):
         in_sample[f"persistence_{k}"] = persistence[name].to_numpy()
     card: dict[str, Any] = {
-        "site_id": site.id, "site_name": site.name, "scheme": site.scheme,
-        "levels": names, "horizon_days": site.model.horizon_days,
+        "site_id": spec.site_id, "site_name": spec.name, "scheme": spec.scheme.key,
+        "levels": names, "horizon_days": spec.horizon_days,
         "training_window": [str(X["issue_date"].min()), str(X["issue_date"].max())],
         "issue_days": int(len(X)), "labelled_issue_days": int(labelled.sum()),
         "exceedances": {name: int((y[labelled] >= k).sum()) for k, name in enumerate(names, 1)},
@@ -163,9 +150,9 @@ def fit_site(site: Site, table: pd.DataFrame, cross_validation: bool = True) -> 
                             "persistence": skill(in_sample, names, "persistence")},
     }
     if cross_validation:
-        cv = cross_validate(site, table)
+        cv = cross_validate(spec, table)
         card["skill_cross_validated"] = ({"model": skill(cv, names),
                                           "climatology": skill(cv, names, "climatology"),
                                           "seasons": int(cv["season"].nunique())}
                                          if len(cv) else None)
-    return FittedSite(site, risk, count, clim, card)
+    return SiteModels(spec.site_id, risk, count, clim, card)

@@ -13,6 +13,21 @@ from enum import IntEnum
 import numpy as np
 import pandas as pd
 
+from cyanorisk.errors import IngestError
+
+__all__ = ["IngestError"]  # raised by every reader; defined with the other errors
+
+BAD_ROW_POLICIES = ("reject", "stop")
+"""A row that cannot be read: into the rejects ledger ('reject'), or an error ('stop')."""
+OFF_GRID_POLICIES = ("aggregate", "drop")
+"""Readings between grid points: combined into their interval, or dropped (ledger)."""
+DUPLICATE_POLICIES = ("last", "first")
+"""Conflicting rows for one stamp (or one sample and taxon): which one to keep, in file order."""
+DEFAULT_BAD_ROWS = "stop"
+"""Stop at the first bad row, naming file, line and column, unless told to reject and go on."""
+DEFAULT_OFF_GRID = "aggregate"
+DEFAULT_DUPLICATES = "last"
+
 
 class Flag(IntEnum):
     """Quality flag of one value on the regular grid.
@@ -46,25 +61,6 @@ FLAG_NAMES: list[str] = [f.name.lower() for f in Flag]
 def flag_column(codes: np.ndarray) -> pd.Categorical:
     """Turn an array of :class:`Flag` codes into the categorical stored in ``*_flag`` columns."""
     return pd.Categorical.from_codes(codes.astype(np.int8), categories=FLAG_NAMES)
-
-
-class IngestError(ValueError):
-    """A problem with an input file, told in one sentence that names file, line and column."""
-
-    def __init__(self, path: object, message: str, line: int | None = None,
-                 column: str | None = None, byte_in_line: int | None = None) -> None:
-        self.path = str(path)
-        self.line = line
-        self.column = column
-        self.reason = message
-        self.byte_in_line = byte_in_line
-        """For an encoding error: 1-based position of the bad byte in its line."""
-        where = self.path
-        if line is not None:
-            where += f", line {line}"
-        if column is not None:
-            where += f", column '{column}'"
-        super().__init__(f"{where}: {message}")
 
 
 class AccountingError(AssertionError):

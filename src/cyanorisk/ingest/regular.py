@@ -54,7 +54,6 @@ class Grid:
     """Rows stamped on a grid point (kept)."""
     n_off_grid: int
     """Rows stamped between grid points (aggregated or dropped)."""
-    freq: pd.Timedelta | None = None
 
 
 def _group_starts(keys: np.ndarray) -> np.ndarray:
@@ -177,7 +176,7 @@ def to_grid(rows: Rows, idx: np.ndarray, step_ns: int, origin_ns: int, off_grid:
         full_state[np.isnan(full) & (full_state == Flag.OK)] = Flag.MISSING
         values[name], states[name] = full, full_state
     t = (first_cell + np.arange(n_cells, dtype=np.int64)) * step_ns + origin_ns
-    return Grid(t, values, states, n_on, n_off, pd.Timedelta(step_ns, unit="ns"))
+    return Grid(t, values, states, n_on, n_off)
 
 
 def _aggregate(v: np.ndarray, s: np.ndarray, conflict: np.ndarray | None, starts: np.ndarray,

@@ -26,8 +26,16 @@ import pandas as pd
 from cyanorisk.ingest.counts import CENSOR_ABOVE, CENSOR_BELOW, EXACT, parse_count
 from cyanorisk.ingest.dialects import DATE_ORDERS, Table, sniff_table
 from cyanorisk.ingest.lines import Parsing, TextFile, read_table, read_text
-from cyanorisk.ingest.quality import IngestError, Ledger, RowAccount
+from cyanorisk.ingest.quality import (
+    DEFAULT_BAD_ROWS,
+    DEFAULT_DUPLICATES,
+    DUPLICATE_POLICIES,
+    IngestError,
+    Ledger,
+    RowAccount,
+)
 from cyanorisk.ingest.stamps import distinct, localize, parse_dates, parse_times, to_ns
+from cyanorisk.timeofday import minutes_after_midnight, parse_hhmm
 
 CELLS_PER_L_IN_ML = 1000.0
 """Cells per litre per cell per millilitre: 1 L = 1000 mL (SI)."""
@@ -69,7 +77,7 @@ class SampleLayout:
     """What 'ND' (not detected) means [cells mL-1]."""
     upper_limit_cells_per_ml: float | None = None
     """What 'TNTC' (too numerous to count) means [cells mL-1]."""
-    duplicates: str = "last"
+    duplicates: str = DEFAULT_DUPLICATES
     """Conflicting records of one sample and taxon: keep the 'last' in file order, or 'first'."""
 
     def __post_init__(self) -> None:
@@ -81,8 +89,9 @@ class SampleLayout:
             raise ValueError(f"date_order must be one of {', '.join(DATE_ORDERS)}")
         if _unit_factor(self.count_unit) is None:
             raise ValueError(f"count_unit must be 'cells/mL' or 'cells/L', not {self.count_unit!r}")
-        if self.duplicates not in ("last", "first"):
+        if self.duplicates not in DUPLICATE_POLICIES:
             raise ValueError("duplicates must be 'last' or 'first'")
+        parse_hhmm(self.default_sample_time)
 
     def named_columns(self) -> set[str]:
         return {c for c in (self.sample_id_column, self.site_column, self.sampled_date_column,
@@ -124,7 +133,8 @@ RECORD_COLUMNS = ["site_id", "sample_id", "sampled_at", "reported_at", "depth_m"
 
 
 def read_samples(paths: str | Path | Sequence[str | Path], layout: SampleLayout, timezone: str, *,
-                 site_id: str | None = None, bad_rows: str = "reject") -> tuple[pd.DataFrame, SamplesMeta]:
+                 site_id: str | None = None,
+                 bad_rows: str = DEFAULT_BAD_ROWS) -> tuple[pd.DataFrame, SamplesMeta]:
     """Read lab result files into tidy records, one per sample and taxon.
 
     Parameters
@@ -146,27 +156,53 @@ def read_samples(paths: str | Path | Sequence[str | Path], layout: SampleLayout,
         Row accounting (balanced), the rejects ledger, assumptions and flag counts.
     """
     paths = [Path(p) for p in ([paths] if isinstance(paths, (str, Path)) else paths)]
+    files = [parse_sample_file(p, layout, timezone, site_id=site_id, bad_rows=bad_rows)
+             for p in paths]
+    return assemble_samples(files, layout)
+
+
+@dataclass
+class SampleFile:
+    """One lab file parsed: its records before they meet the other files' records."""
+
+    path: Path
+    records: pd.DataFrame
+    """Columns :data:`RECORD_COLUMNS` and ``_row`` (the row's index in the file)."""
+    rows_read: int
+    rejects: pd.DataFrame
+    """Rows of this file that could not be read (the ledger's columns)."""
+    notes: list[str]
+
+
+def parse_sample_file(path: str | Path, layout: SampleLayout, timezone: str, *,
+                      site_id: str | None = None, bad_rows: str = DEFAULT_BAD_ROWS) -> SampleFile:
+    """Read one lab file into records (see :func:`read_samples`)."""
     ledger = Ledger()
-    parts, notes = [], []
-    read = 0
-    for path in paths:
-        records, n_rows, said = _read_file(path, layout, timezone, site_id, bad_rows, ledger)
-        parts.append(records)
-        read += n_rows
-        notes += [f"{path.name}: {s}" for s in said]
+    path = Path(path)
+    records, n_rows, said = _read_file(path, layout, timezone, site_id, bad_rows, ledger)
+    return SampleFile(path, records, n_rows, ledger.frame(), [f"{path.name}: {s}" for s in said])
+
+
+def assemble_samples(files: Sequence[SampleFile],
+                     layout: SampleLayout) -> tuple[pd.DataFrame, SamplesMeta]:
+    """Put parsed lab files together: repeated records merged or resolved by policy, the row
+    account proved. See :func:`read_samples`."""
+    ledger = Ledger([f.rejects for f in files if len(f.rejects)])
+    parts = [f.records for f in files]
     data = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame(columns=RECORD_COLUMNS)
     rejected = sum(len(p) for p in ledger.parts)
     before = _raw_rows(data)
     data, conflicting = _deduplicate(data, layout.duplicates, ledger, layout.encoding)
     kept = _raw_rows(data)
     gone = before - kept  # rows all of whose records were merged into or superseded by others
-    account = RowAccount(read=read, rejected=rejected, kept=len(kept),
+    account = RowAccount(read=sum(f.rows_read for f in files), rejected=rejected, kept=len(kept),
                          duplicates_conflicting=len(gone & conflicting),
                          duplicates_identical=len(gone - conflicting))
     account.check()
     flags = data["flag"].str.split(",").explode()
     counts = flags[flags.astype(bool)].value_counts()
-    meta = SamplesMeta([str(p) for p in paths], account, ledger.frame(), notes,
+    meta = SamplesMeta([str(f.path) for f in files], account, ledger.frame(),
+                       [n for f in files for n in f.notes],
                        {str(k): int(v) for k, v in counts.items()})
     return data.drop(columns=["_row"]).reset_index(drop=True), meta
 
@@ -284,7 +320,7 @@ def _sample_times(cols: dict, layout: SampleLayout, timezone: str, n: int,
         t_text = cols[layout.sampled_time_column]
         blank = np.array([not str(x).strip() for x in t_text])
         tod = parse_times([str(x) for x in t_text])
-        default = parse_times([layout.default_sample_time])[0]
+        default = minutes_after_midnight(layout.default_sample_time) * 60 * 10**9
         for i in np.flatnonzero((tod < 0) & ~blank):
             problems.append((int(i), layout.sampled_time_column, "bad_time",
                              f"'{t_text[i]}' is not a time of day; expected HH:MM"))
@@ -292,7 +328,7 @@ def _sample_times(cols: dict, layout: SampleLayout, timezone: str, n: int,
         tod = np.where(blank, default, tod)
     else:
         assumed = np.ones(n, dtype=bool)
-        tod = np.full(n, parse_times([layout.default_sample_time])[0])
+        tod = np.full(n, minutes_after_midnight(layout.default_sample_time) * 60 * 10**9)
     said["time_assumed"] = assumed
     utc, _, nonexistent = localize(to_ns(days, tod), timezone)
     for i in np.flatnonzero(nonexistent):

@@ -32,7 +32,19 @@ from cyanorisk.ingest.dialects import (
     zone_offset,
 )
 from cyanorisk.ingest.lines import Parsing, RawTable, TextFile, read_table, read_text
-from cyanorisk.ingest.quality import Flag, IngestError, Ledger, RowAccount, flag_column
+from cyanorisk.ingest.quality import (
+    BAD_ROW_POLICIES,
+    DEFAULT_BAD_ROWS,
+    DEFAULT_DUPLICATES,
+    DEFAULT_OFF_GRID,
+    DUPLICATE_POLICIES,
+    OFF_GRID_POLICIES,
+    Flag,
+    IngestError,
+    Ledger,
+    RowAccount,
+    flag_column,
+)
 from cyanorisk.ingest.regular import Rows
 from cyanorisk.ingest.stamps import (
     NAT,
@@ -43,10 +55,6 @@ from cyanorisk.ingest.stamps import (
 )
 from cyanorisk.units import to_canonical
 from cyanorisk.variables import WEATHER_VARIABLES
-
-OFF_GRID_POLICIES = ("aggregate", "drop")
-DUPLICATE_POLICIES = ("last", "first")
-BAD_ROW_POLICIES = ("reject", "stop")
 
 
 @dataclass
@@ -109,11 +117,13 @@ def read_weather(
     timezone: str = "UTC",
     *,
     period: tuple[str | pd.Timestamp | None, str | pd.Timestamp | None] | None = None,
-    off_grid: str = "aggregate",
-    duplicates: str = "last",
-    bad_rows: str = "reject",
+    off_grid: str = DEFAULT_OFF_GRID,
+    duplicates: str = DEFAULT_DUPLICATES,
+    bad_rows: str = DEFAULT_BAD_ROWS,
 ) -> tuple[pd.DataFrame, WeatherMeta]:
     """Read, clean and regularise weather-station logs.
+
+    The same as :func:`parse_weather_file` on each file, then :func:`assemble_weather`.
 
     Parameters
     ----------
@@ -149,29 +159,90 @@ def read_weather(
     IngestError
         A file that cannot be read as a whole, or (``bad_rows='stop'``) the first bad row.
     """
-    dialect = dialect or WeatherDialect()
     paths = [Path(p) for p in ([paths] if isinstance(paths, (str, Path)) else paths)]
     if not paths:
         raise ValueError("no weather files given")
-    for name, value, allowed in (("off_grid", off_grid, OFF_GRID_POLICIES),
-                                 ("duplicates", duplicates, DUPLICATE_POLICIES),
-                                 ("bad_rows", bad_rows, BAD_ROW_POLICIES)):
-        if value not in allowed:
-            raise ValueError(f"{name} must be one of {', '.join(allowed)}, not {value!r}")
+    _check_policy("bad_rows", bad_rows, BAD_ROW_POLICIES)
+    dialect = dialect or WeatherDialect()
+    files = [parse_weather_file(p, dialect, timezone, interval, bad_rows=bad_rows) for p in paths]
+    return assemble_weather(files, interval, timezone, period=period, off_grid=off_grid,
+                            duplicates=duplicates, encoding=dialect.encoding)
+
+
+def _check_policy(name: str, value: str, allowed: tuple[str, ...]) -> None:
+    if value not in allowed:
+        raise ValueError(f"{name} must be one of {', '.join(allowed)}, not {value!r}")
+
+
+@dataclass
+class WeatherFile:
+    """One weather file parsed: its readings, before they meet the other files on the grid."""
+
+    path: Path
+    rows: Rows
+    """Readings of the rows that parsed, in file order, stamps in UTC."""
+    rejects: pd.DataFrame
+    """Rows of this file that could not be parsed (the ledger's columns)."""
+    report: FileReport
+    n_ambiguous: int = 0
+    n_nonexistent: int = 0
+
+    def to_frame(self) -> pd.DataFrame:
+        """The readings as a table (for the clean-data cache): t, line, and per variable its
+        value and its state."""
+        cols: dict[str, np.ndarray] = {"t": self.rows.t, "line": self.rows.line}
+        for v, values in self.rows.values.items():
+            cols[v] = values
+            cols[f"{v}__state"] = self.rows.states[v]
+        return pd.DataFrame(cols)
+
+    @classmethod
+    def from_frame(cls, path: Path, frame: pd.DataFrame, rejects: pd.DataFrame, report: dict,
+                   n_ambiguous: int, n_nonexistent: int) -> WeatherFile:
+        names = [c for c in frame.columns if c not in ("t", "line") and not c.endswith("__state")]
+        rows = Rows(frame["t"].to_numpy(dtype=np.int64),
+                    {v: frame[v].to_numpy(dtype=np.float64).copy() for v in names},
+                    {v: frame[f"{v}__state"].to_numpy(dtype=np.int8).copy() for v in names},
+                    np.zeros(len(frame), dtype=np.int32), frame["line"].to_numpy(dtype=np.int64))
+        return cls(Path(path), rows, rejects, FileReport(**report), n_ambiguous, n_nonexistent)
+
+
+def parse_weather_file(path: str | Path, dialect: WeatherDialect | None, timezone: str,
+                       interval: str | pd.Timedelta, *, bad_rows: str = DEFAULT_BAD_ROWS) -> WeatherFile:
+    """Parse one weather file: layout, stamps to UTC, values in canonical units, row problems.
+
+    Raises
+    ------
+    IngestError
+        A file that cannot be read as a whole, or (``bad_rows='stop'``) its first bad row.
+    """
+    dialect = dialect or WeatherDialect()
+    ledger = Ledger()
+    rows, report, n_amb, n_non = _parse_file(Path(path), 0, dialect, timezone,
+                                             int(pd.Timedelta(interval).value), bad_rows, ledger)
+    return WeatherFile(Path(path), rows, ledger.frame(), report, n_amb, n_non)
+
+
+def assemble_weather(files: Sequence[WeatherFile], interval: str | pd.Timedelta, timezone: str, *,
+                     period: tuple | None = None, off_grid: str = DEFAULT_OFF_GRID,
+                     duplicates: str = DEFAULT_DUPLICATES,
+                     encoding: str = "utf-8") -> tuple[pd.DataFrame, WeatherMeta]:
+    """Put parsed files together on the regular grid: period, ranges, duplicates across files,
+    off-grid readings, short gaps, flags; the row account is proved before anything is returned.
+    See :func:`read_weather`."""
+    _check_policy("off_grid", off_grid, OFF_GRID_POLICIES)
+    _check_policy("duplicates", duplicates, DUPLICATE_POLICIES)
     step = pd.Timedelta(interval)
     step_ns = int(step.value)
-    ledger = Ledger()
-    reports: list[FileReport] = []
-    parts: list[Rows] = []
-    amb = nonexist = 0
-    for k, path in enumerate(paths):
-        rows, report, n_amb, n_non = _parse_file(path, k, dialect, timezone, step_ns, bad_rows,
-                                                 ledger)
+    paths = [f.path for f in files]
+    ledger = Ledger([f.rejects for f in files if len(f.rejects)])
+    parts = []
+    for k, f in enumerate(files):
+        rows = f.rows.take(np.arange(len(f.rows.t)))  # a copy: range checks write into values
+        rows.file = np.full(len(rows.t), k, dtype=np.int32)
         parts.append(rows)
-        reports.append(report)
-        amb, nonexist = amb + n_amb, nonexist + n_non
     rows = _concat(parts)
-    account = RowAccount(read=sum(r.rows_read for r in reports))
+    account = RowAccount(read=sum(f.report.rows_read for f in files))
     account.rejected = sum(len(p) for p in ledger.parts)
     rows = _keep_period(rows, period, timezone, paths, ledger, account)
     _range_check(rows)
@@ -184,11 +255,12 @@ def read_weather(
     regular.fill_gaps(grid, step)
     data = _frame(grid)
     meta = WeatherMeta(
-        files=reports, account=account, rejects=_with_raw_lines(ledger.frame(), dialect),
-        interval=step, timezone=timezone,
+        files=[f.report for f in files], account=account,
+        rejects=_with_raw_lines(ledger.frame(), encoding), interval=step, timezone=timezone,
         start=data.index[0] if len(data) else None, end=data.index[-1] if len(data) else None,
         flag_counts={v: _flag_counts(s) for v, s in grid.states.items()},
-        ambiguous_resolved=amb, nonexistent_rejected=nonexist,
+        ambiguous_resolved=sum(f.n_ambiguous for f in files),
+        nonexistent_rejected=sum(f.n_nonexistent for f in files),
     )
     return data, meta
 
@@ -426,11 +498,11 @@ def _keep_period(rows: Rows, period: tuple | None, timezone: str, paths: list[Pa
     return rows.take(inside)
 
 
-def _with_raw_lines(rejects: pd.DataFrame, dialect: WeatherDialect) -> pd.DataFrame:
+def _with_raw_lines(rejects: pd.DataFrame, encoding: str) -> pd.DataFrame:
     """Fill in the raw text of ledger rows recorded after parsing (duplicates, off-grid, period)."""
     blank = rejects["raw"] == ""
     for file in rejects.loc[blank, "file"].unique():
-        text = read_text(Path(file), dialect.encoding)
+        text = read_text(Path(file), encoding)
         sel = blank & (rejects["file"] == file)
         rejects.loc[sel, "raw"] = [text.line(int(n)) for n in rejects.loc[sel, "line"]]
     return rejects

@@ -4,18 +4,17 @@ from __future__ import annotations
 
 import html
 
-import matplotlib.pyplot as plt
 import numpy as np
 import pandas as pd
 
-from cyanorisk.report.daily import CSS, _png
+from cyanorisk.report.daily import CSS
+from cyanorisk.report.figures import data_uri, new_figure
 from cyanorisk.report.plots import LEVEL_COLOURS
 from cyanorisk.verify import reliability_table, roc_curve
 
 
-def roc_plot(forecasts: pd.DataFrame, level: str, ax=None):
+def roc_plot(forecasts: pd.DataFrame, level: str, ax):
     """ROC curves of the model and the climatology for one level."""
-    ax = ax or plt.gca()
     f = forecasts[forecasts["level"] == level]
     for column, label, style in (("probability", "model", "-"), ("climatology", "climatology", "--")):
         curve = roc_curve(f[column].to_numpy(dtype=float), f["outcome"].to_numpy(dtype=float))
@@ -28,9 +27,8 @@ def roc_plot(forecasts: pd.DataFrame, level: str, ax=None):
     return ax
 
 
-def reliability_plot(forecasts: pd.DataFrame, level: str, ax=None):
+def reliability_plot(forecasts: pd.DataFrame, level: str, ax):
     """Observed frequency against forecast probability (binned), with the bin counts."""
-    ax = ax or plt.gca()
     f = forecasts[forecasts["level"] == level]
     table = reliability_table(f["probability"].to_numpy(dtype=float),
                               f["outcome"].to_numpy(dtype=float), bins=10)
@@ -49,10 +47,9 @@ def reliability_plot(forecasts: pd.DataFrame, level: str, ax=None):
 
 
 def timeline_plot(forecasts: pd.DataFrame, counts: pd.DataFrame, season: int, names: list[str],
-                  cells: list[float], ax=None):
+                  cells: list[float], ax):
     """One season: counts (log scale, left) with level lines; forecast probability and warning
     days of the first level (right)."""
-    ax = ax or plt.gca()
     f = forecasts[(forecasts["season"] == season)]
     c = counts[counts["season"] == season]
     if len(c):
@@ -89,15 +86,15 @@ def render_backtest(site_name: str, result, counts: pd.DataFrame, names: list[st
     e = html.escape
     figs = []
     for level in names:
-        fig, axes = plt.subplots(1, 2, figsize=(9, 3.4))
+        fig, axes = new_figure(9, 3.4, 1, 2)
         roc_plot(result.forecasts, level, ax=axes[0])
         reliability_plot(result.forecasts, level, ax=axes[1])
-        figs.append(_png(fig))
+        figs.append(data_uri(fig))
     timelines = []
     for season in sorted(result.forecasts["season"].unique()):
-        fig, ax = plt.subplots(figsize=(9, 2))
+        fig, ax = new_figure(9, 2)
         timeline_plot(result.forecasts, counts, season, names, cells, ax=ax)
-        timelines.append(_png(fig))
+        timelines.append(data_uri(fig))
     notes = "".join(f"<li>{e(n)}</li>" for n in result.notes) or "<li>none</li>"
     scores = result.scores.copy()
     scores = scores[scores["source"] != "climatology"]
@@ -120,9 +117,8 @@ be computed; the note says why.</p>
 """
 
 
-def tradeoff_plot(choices, ax=None):
+def tradeoff_plot(choices, ax):
     """Hit rate and false alarm ratio against the threshold, per level, chosen thresholds marked."""
-    ax = ax or plt.gca()
     for choice, colour in zip(choices, LEVEL_COLOURS, strict=False):
         t = choice.table
         ax.plot(t["threshold"], t["hit_rate"], color=colour, label=f"{choice.level}: hit rate")

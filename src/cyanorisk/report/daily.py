@@ -6,16 +6,14 @@ plain-text summary for e-mail. Rendering only: the numbers come from
 
 from __future__ import annotations
 
-import base64
 import html
-import io
 import json
 from typing import Any
 
-import matplotlib.pyplot as plt
-
-from cyanorisk.forecast import STATUS_ASSESSED, STATUS_NONE, Assessment
-from cyanorisk.report.labels import driver_label
+from cyanorisk.drivers import driver_label
+from cyanorisk.forecast import HISTORY_DRIVERS, STATUS_ASSESSED, STATUS_NONE, Assessment
+from cyanorisk.report.document import report_document
+from cyanorisk.report.figures import data_uri, new_figure
 from cyanorisk.report.plots import counts_plot, drivers_plot, probability_plot
 
 CSS = """
@@ -35,13 +33,6 @@ img { max-width: 100%; } .small { font-size: 0.85em; color: #444; }
 @media print { body { margin: 0; max-width: none; } .headline { break-inside: avoid; }
                img { break-inside: avoid; } }
 """
-
-
-def _png(fig) -> str:
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=110, bbox_inches="tight")
-    plt.close(fig)
-    return "data:image/png;base64," + base64.b64encode(buf.getvalue()).decode("ascii")
 
 
 def _fmt_cells(v: float | None, censor: str | None = None) -> str:
@@ -64,9 +55,8 @@ def _strength(log_odds: float) -> str:
     return f"{word} ({log_odds:+.2f})"
 
 
-def figures(a: Assessment) -> dict[str, str]:
+def figures(a: Assessment, c: dict[str, Any]) -> dict[str, str]:
     """The report's plots as PNG data URIs."""
-    c = a.content
     names = c["scheme"]["levels"]
     lines = []
     for name, thresholds in zip(names, c["scheme"]["thresholds"], strict=True):
@@ -74,16 +64,16 @@ def figures(a: Assessment) -> dict[str, str]:
         if cells:
             lines.append((name, cells[0]))
     out = {}
-    fig, ax = plt.subplots(figsize=(8, 3))
+    fig, ax = new_figure(8, 3)
     counts_plot(a.counts, lines, c["site"]["timezone"], ax=ax)
-    out["counts"] = _png(fig)
-    fig, ax = plt.subplots(figsize=(8, 2.5))
+    out["counts"] = data_uri(fig)
+    fig, ax = new_figure(8, 2.5)
     probability_plot(a.history, names, c["forecast"]["warn_at"], ax=ax)
-    out["probability"] = _png(fig)
-    fig, axes = plt.subplots(5, 1, figsize=(8, 6), sharex=True)
-    drivers_plot(a.history, axes)
+    out["probability"] = data_uri(fig)
+    fig, axes = new_figure(8, 6, len(HISTORY_DRIVERS), 1, sharex=True)
+    drivers_plot(a.history, list(HISTORY_DRIVERS), axes)
     fig.suptitle("Weather drivers at each issue time", fontsize=9)
-    out["drivers"] = _png(fig)
+    out["drivers"] = data_uri(fig)
     return out
 
 
@@ -104,14 +94,14 @@ def _render_no_assessment(c: dict[str, Any]) -> str:
 
 def render_html(a: Assessment) -> str:
     """The self-contained HTML page."""
-    c = a.content
+    c = report_document(a)
     if c["status"] == STATUS_NONE:
         return _render_no_assessment(c)
     e = html.escape
     f, o, fr = c["forecast"], c["observed"], c["freshness"]
     assessed = c["status"] == STATUS_ASSESSED
     klass = f"level-{f['level_rank']}" if assessed else "insufficient"
-    figs = figures(a)
+    figs = figures(a, c)
     rows = "".join(
         f"<tr><td>{e(n)}</td><td>{f['probabilities'][n]:.0%}</td><td>{f['warn_at'][n]:.0%}</td>"
         f"<td>{'yes' if f['probabilities'][n] >= f['warn_at'][n] else 'no'}</td>"
@@ -202,12 +192,12 @@ fingerprint {e(str(m['fingerprint'])[:16])}. Scheme source: {e(c['scheme']['sour
 
 def render_json(a: Assessment) -> str:
     """The JSON document (see report.schema.json)."""
-    return json.dumps(a.content, indent=2, default=str)
+    return json.dumps(report_document(a), indent=2, default=str)
 
 
 def render_text(a: Assessment) -> str:
     """A plain-text summary for e-mail."""
-    c = a.content
+    c = report_document(a)
     f, o = c["forecast"], c["observed"]
     lines = [f"{c['site']['name']} - bloom risk for {c['as_of']} (issued {c['issue_time_local']})",
              "", c["headline"], ""]
@@ -233,7 +223,3 @@ def render_text(a: Assessment) -> str:
     lines += ["", "Cautions:"] + [f"- {x}" for x in c["cautions"]]
     lines += ["", c["deferral"]]
     return "\n".join(lines) + "\n"
-
-
-def report_stem(content: dict[str, Any]) -> str:
-    return f"{content['site']['id']}_{content['as_of']}"

@@ -2,22 +2,18 @@
 
 from __future__ import annotations
 
-import matplotlib
-
-matplotlib.use("Agg")  # reports are files; no screen needed
-
 import matplotlib.dates as mdates
-import matplotlib.pyplot as plt
 import numpy as np
 import pandas as pd
+
+from cyanorisk.drivers import driver_label
 
 LEVEL_COLOURS = ["#b8860b", "#8b0000", "#4b0082"]
 """Line colours for the first, second and third level (our own palette)."""
 
 
-def counts_plot(counts: pd.DataFrame, levels: list[tuple[str, float]], tz: str, ax=None):
+def counts_plot(counts: pd.DataFrame, levels: list[tuple[str, float]], tz: str, ax):
     """Cell counts on a log axis with the scheme's level lines; censored values marked."""
-    ax = ax or plt.gca()
     if len(counts):
         t = counts["sampled_at"].dt.tz_convert(tz).dt.tz_localize(None)
         v = counts["cyano_cells_per_ml"].astype(float).clip(lower=1.0)
@@ -42,9 +38,8 @@ def counts_plot(counts: pd.DataFrame, levels: list[tuple[str, float]], tz: str, 
     return ax
 
 
-def probability_plot(history: pd.DataFrame, names: list[str], warn_at: dict[str, float], ax=None):
+def probability_plot(history: pd.DataFrame, names: list[str], warn_at: dict[str, float], ax):
     """Probability of reaching each level within the horizon, per issue day."""
-    ax = ax or plt.gca()
     for name, colour in zip(names, LEVEL_COLOURS, strict=False):
         ax.plot(history["issue_date"], history[name], color=colour, lw=1.5, label=name)
         ax.axhline(warn_at.get(name, 0.5), color=colour, ls=":", lw=1)
@@ -56,15 +51,10 @@ def probability_plot(history: pd.DataFrame, names: list[str], warn_at: dict[str,
     return ax
 
 
-def drivers_plot(history: pd.DataFrame, axes=None):
-    """Weather drivers: degree-days, wind run, calm hours, rain (one panel each)."""
-    panels = [("water_temp_mean_c_7d", "water temperature, 7-day mean [degC]"),
-              ("degree_days_20c_7d", "degree-days above 20 degC, 7 d"),
-              ("wind_run_km_1d", "wind run [km/day]"),
-              ("calm_hours_7d", "calm hours, 7 d"), ("rain_mm_1d", "rain [mm/day]")]
-    if axes is None:
-        _, axes = plt.subplots(len(panels), 1, sharex=True)
-    for ax, (col, label) in zip(np.ravel(axes), panels, strict=True):
+def drivers_plot(history: pd.DataFrame, columns: list[str], axes):
+    """Weather drivers, one panel each, labelled from the driver glossary."""
+    for ax, col in zip(np.ravel(axes), columns, strict=True):
+        label = driver_label(col)
         if col in history:
             if col.startswith("rain"):
                 ax.bar(history["issue_date"], history[col], color="#2e75b6", width=0.8)

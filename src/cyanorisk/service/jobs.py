@@ -1,7 +1,7 @@
 """The daily job: ``run_daily(as_of, config)`` assesses every site and records what it issued.
 
-- Incremental: a site whose files are all known to the store with the same content hash (and
-  whose clean tables exist) is not ingested again; new or changed files trigger a fresh ingest.
+- Incremental: the site pipeline reuses a site's clean tables while its raw files are unchanged
+  (the same cache as the command line's), and parses again only the files that changed.
 - Idempotent: a report is issued for (site, as_of) only when its inputs (file hashes, model,
   thresholds) differ from those of the last revision issued; the new revision records why.
 - One site failing (a corrupt file, a missing model) does not stop the others: the failure is
@@ -33,23 +33,16 @@ import pandas as pd
 import cyanorisk
 from cyanorisk.atomic import write_group
 from cyanorisk.config import Config, Site
-from cyanorisk.evaluation import thresholds_path
+from cyanorisk.errors import RunLockedError
 from cyanorisk.forecast import STATUS_NONE, Assessment, no_assessment
-from cyanorisk.ingest.sites import (
-    ingest_site_samples,
-    ingest_site_weather,
-    site_paths,
-    write_site_ingest,
-)
-from cyanorisk.reporting import assess_site, model_path, thresholds_for, write_report
+from cyanorisk.pipeline import SitePipeline
+from cyanorisk.pipeline.clean import file_digest
 from cyanorisk.service.store import IssuedReport, Store
 
 Clock = Callable[[], str]
 """Gives the current instant as ISO 8601 text (injected; the service passes the real clock)."""
 
-
-class RunLockedError(RuntimeError):
-    """Another daily run holds the lock."""
+__all__ = ["RunLockedError", "RunResult", "SiteOutcome", "run_daily", "run_site", "utc_clock"]
 
 
 @dataclass
@@ -78,13 +71,7 @@ class RunResult:
     sites: list[SiteOutcome]
 
 
-def sha256_of(path: Path) -> str:
-    """Hex SHA-256 of a file's bytes, read in chunks."""
-    h = hashlib.sha256()
-    with open(path, "rb") as fh:
-        for chunk in iter(lambda: fh.read(1 << 20), b""):
-            h.update(chunk)
-    return h.hexdigest()
+sha256_of = file_digest
 
 
 @contextmanager
@@ -104,16 +91,12 @@ def run_lock(config: Config) -> Iterator[Path]:
         fh.close()
 
 
-def site_inputs(config: Config, site: Site) -> dict[str, Any]:
+def site_inputs(pipeline: SitePipeline) -> dict[str, Any]:
     """Content hashes of everything a site's report depends on."""
-    files = {str(p): sha256_of(p) for p in site.weather.files}
-    if site.samples is not None:
-        files.update({str(p): sha256_of(p) for p in site.samples.files})
-    model = model_path(config, site.id)
-    tuned = thresholds_path(config, site.id)
-    return {"files": files,
-            "model": sha256_of(model) if model.exists() else None,
-            "thresholds": sha256_of(tuned) if tuned.exists() else None,
+    ws = pipeline.workspace
+    return {"files": dict(pipeline.digests()),
+            "model": file_digest(ws.model_file) if ws.model_file.exists() else None,
+            "thresholds": file_digest(ws.thresholds_file) if ws.thresholds_file.exists() else None,
             "cyanorisk_version": cyanorisk.__version__}
 
 
@@ -142,48 +125,33 @@ def _changes(old: dict[str, Any], new: dict[str, Any]) -> list[str]:
     return said
 
 
-def _site_data(config: Config, site: Site, store: Store, inputs: dict[str, Any],
-               when: str) -> tuple[pd.DataFrame, pd.DataFrame | None, dict]:
-    """The site's clean weather and sample totals: from the last ingest when no file changed."""
-    paths = site_paths(config, site.id)
-    summary = config.data_dir / site.id / "ingest_rows.json"
-    needed = [paths["weather"], summary] + ([paths["sample_totals"]] if site.samples else [])
-    if all(p.exists() for p in needed):
-        cached = json.loads(summary.read_text(encoding="utf-8"))
-        # the clean tables serve only while the files behind them are exactly the current ones
-        if cached.get("files") == inputs["files"]:
-            totals = pd.read_parquet(paths["sample_totals"]) if site.samples else None
-            return pd.read_parquet(paths["weather"]), totals, cached
-    weather = ingest_site_weather(config, site)
-    samples = ingest_site_samples(config, site, weather.meta)
-    rows = {"weather": weather.meta.account.as_dict(),
-            "samples": samples.meta.account.as_dict() if samples else None,
-            "files": inputs["files"]}
-    write_site_ingest(config, weather, samples)
-    write_group({summary: lambda tmp: tmp.write_text(json.dumps(rows), encoding="utf-8")})
-    for path, digest in inputs["files"].items():
-        store.record_file(site.id, path, digest, rows["weather"] if path in map(str, site.weather.files)
-                          else rows["samples"] or {}, when)
-    return weather.data, (samples.totals if samples else None), rows
+def _clean(pipeline: SitePipeline, store: Store, when: str) -> None:
+    """Clean data for the site (shared with the command line); record the files behind it."""
+    clean = pipeline.clean()
+    weather_files = {str(p) for p in pipeline.site.weather.files}
+    for path, digest in pipeline.digests().items():
+        rows = clean.rows["weather"] if path in weather_files else clean.rows["samples"] or {}
+        store.record_file(pipeline.spec.site_id, path, digest, rows, when)
 
 
-def notify(config: Config, assessment: Assessment, previous: IssuedReport | None,
-           revision: int) -> str | None:
+def notify(config: Config, pipeline: SitePipeline, assessment: Assessment,
+           previous: IssuedReport | None, revision: int) -> str | None:
     """Write (and mail, when configured) a notification when the level rose; the outbox path."""
-    c = assessment.content
-    rank = c["forecast"]["level_rank"]
+    f = assessment.forecast
+    rank = f.level_rank
     before = previous.level_rank if previous is not None else None
     if rank is None or rank <= (before or 0):
         return None
+    spec = assessment.spec
+    day = str(assessment.as_of.date())
     msg = EmailMessage()
-    msg["Subject"] = (f"cyanorisk: {c['site']['name']} rose to {c['forecast']['level']} "
-                      f"({c['as_of']})")
+    msg["Subject"] = f"cyanorisk: {spec.name} rose to {f.level} ({day})"
     msg["From"] = config.service.mail_from
     msg["To"] = ", ".join(config.service.mail_to) or "water-quality team"
     was = previous.level if previous is not None else "no earlier report"
-    msg.set_content(f"{c['headline']}\n\nPrevious report: {was}.\n\n" + "\n".join(
-        f"- {x}" for x in c["cautions"]) + f"\n\n{c['deferral']}\n")
-    path = config.outbox / f"{c['site']['id']}_{c['as_of']}_r{revision}.eml"
+    msg.set_content(f"{assessment.headline}\n\nPrevious report: {was}.\n\n" + "\n".join(
+        f"- {x}" for x in assessment.cautions) + f"\n\n{assessment.deferral}\n")
+    path = pipeline.workspace.notice_file(f"{spec.site_id}_{day}_r{revision}.eml")
     write_group({path: lambda tmp: tmp.write_bytes(bytes(msg))})
     if config.service.smtp_host and config.service.mail_to:
         with smtplib.SMTP(config.service.smtp_host, config.service.smtp_port, timeout=30) as smtp:
@@ -191,45 +159,46 @@ def notify(config: Config, assessment: Assessment, previous: IssuedReport | None
     return str(path)
 
 
-def _issue(config: Config, site: Site, store: Store, as_of: str, run_id: int, when: str,
-           assessment: Assessment, inputs: dict[str, Any], fp: str,
+def _issue(config: Config, pipeline: SitePipeline, store: Store, as_of: str, run_id: int,
+           when: str, assessment: Assessment, inputs: dict[str, Any], fp: str,
            previous_same_day: IssuedReport | None, failure: str | None = None) -> SiteOutcome:
-    paths = [str(p) for p in write_report(config, assessment)]
-    c = assessment.content
+    site_id = pipeline.spec.site_id
+    paths = [str(p) for p in pipeline.write_report(assessment)]
+    f = assessment.forecast
     revision = previous_same_day.revision + 1 if previous_same_day else 1
     reason = ("first report for this day" if previous_same_day is None else
               "inputs changed: " + ", ".join(_changes(previous_same_day.inputs, inputs) or
                                              ["status changed"]))
     if failure is not None:
         reason = f"no assessment: {failure}; {reason}"
-    previous = store.latest_report(site.id, as_of) or store.latest_report(site.id, before=as_of)
-    note = notify(config, assessment, previous, revision) if c["status"] != STATUS_NONE else None
-    thresholds = {"warn_at": c["forecast"]["warn_at"], "source": c["forecast"]["thresholds_source"]}
+    previous = store.latest_report(site_id, as_of) or store.latest_report(site_id, before=as_of)
+    note = (notify(config, pipeline, assessment, previous, revision)
+            if assessment.status != STATUS_NONE else None)
+    thresholds = {"warn_at": dict(f.thresholds.warn_at) if f.thresholds else {},
+                  "source": f.thresholds.source if f.thresholds else "not applied"}
     store.record_report(IssuedReport(
-        site_id=site.id, as_of=as_of, revision=revision, status=c["status"],
-        level_rank=c["forecast"]["level_rank"], level=c["forecast"]["level"],
-        probabilities=c["forecast"]["probabilities"], model_version=c["model"]["trained_with"],
-        thresholds=thresholds, fingerprint=fp, inputs=inputs, paths=paths, reason=reason,
-        issued_at=when, run_id=run_id))
-    return SiteOutcome(site.id, "issued", revision, c["status"], c["forecast"]["level"], reason,
-                       paths, note)
+        site_id=site_id, as_of=as_of, revision=revision, status=assessment.status,
+        level_rank=f.level_rank, level=f.level, probabilities=dict(f.probabilities),
+        model_version=assessment.model.trained_with, thresholds=thresholds, fingerprint=fp,
+        inputs=inputs, paths=paths, reason=reason, issued_at=when, run_id=run_id))
+    return SiteOutcome(site_id, "issued", revision, assessment.status, f.level, reason, paths, note)
 
 
 def run_site(config: Config, site: Site, store: Store, as_of: str, run_id: int,
              clock: Clock) -> SiteOutcome:
     """Assess one site for one day, unless the same inputs were already reported."""
+    pipeline = SitePipeline.of(config, site)
     previous = store.latest_report(site.id, as_of)
     inputs: dict[str, Any] = {}
     try:
-        inputs = site_inputs(config, site)
+        inputs = site_inputs(pipeline)
         fp = fingerprint(as_of, inputs)
         if previous is not None and previous.fingerprint == fp and previous.status != STATUS_NONE \
                 and all(Path(p).exists() for p in previous.paths):
             return SiteOutcome(site.id, "unchanged", previous.revision, previous.status,
                                previous.level, "same inputs as the last revision", previous.paths)
-        weather, totals, rows = _site_data(config, site, store, inputs, clock())
-        thresholds_for(config, site)  # a broken thresholds file fails here, for this site only
-        assessment = assess_site(config, site, weather, totals, rows, pd.Timestamp(as_of))
+        _clean(pipeline, store, clock())
+        assessment = pipeline.assess(pd.Timestamp(as_of))
     except Exception as exc:  # the service must not fall over on one site: record and go on
         reason = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
         inputs = {**inputs, "error": reason}
@@ -237,13 +206,13 @@ def run_site(config: Config, site: Site, store: Store, as_of: str, run_id: int,
         if previous is not None and previous.fingerprint == fp:
             return SiteOutcome(site.id, "failed", previous.revision, STATUS_NONE, None, reason,
                                previous.paths)
-        outcome = _issue(config, site, store, as_of, run_id, clock(),
-                         no_assessment(site, pd.Timestamp(as_of), reason), inputs, fp, previous,
-                         failure=reason)
+        outcome = _issue(config, pipeline, store, as_of, run_id, clock(),
+                         no_assessment(site.spec, pd.Timestamp(as_of), reason), inputs, fp,
+                         previous, failure=reason)
         outcome.action = "failed"
         outcome.reason = reason
         return outcome
-    return _issue(config, site, store, as_of, run_id, clock(), assessment, inputs, fp, previous)
+    return _issue(config, pipeline, store, as_of, run_id, clock(), assessment, inputs, fp, previous)
 
 
 def run_daily(as_of: str | pd.Timestamp, config: Config, *, clock: Clock,
@@ -276,4 +245,3 @@ def run_daily(as_of: str | pd.Timestamp, config: Config, *, clock: Clock,
 def utc_clock() -> str:
     """The real clock, for the service's edge only."""
     return pd.Timestamp.now(tz="UTC").isoformat()
-

@@ -27,6 +27,7 @@ from apscheduler.triggers.interval import IntervalTrigger
 from cyanorisk.config import Config, Site, load_config
 from cyanorisk.service.jobs import RunResult, run_daily, utc_clock
 from cyanorisk.service.store import Store
+from cyanorisk.timeofday import parse_hhmm
 
 log = logging.getLogger("cyanorisk.service")
 
@@ -35,7 +36,7 @@ JOB_PREFIX = "cyanorisk-daily:"
 
 def issue_trigger(site: Site) -> CronTrigger:
     """Every day at the site's issue time, in its zone."""
-    hour, minute = (int(x) for x in site.drivers.issue_time.split(":")[:2])
+    hour, minute = parse_hhmm(site.drivers.issue_time)
     return CronTrigger(hour=hour, minute=minute, timezone=ZoneInfo(site.timezone))
 
 
@@ -77,7 +78,7 @@ def missed_days(config: Config, site: Site, now: datetime, store: Store) -> list
     if last is None:
         return []
     tz = ZoneInfo(site.timezone)
-    hour, minute = (int(x) for x in site.drivers.issue_time.split(":")[:2])
+    hour, minute = parse_hhmm(site.drivers.issue_time)
     local_now = now.astimezone(tz)
     day = pd.Timestamp(last.as_of).date() + timedelta(days=1)
     days = []

@@ -1,0 +1,229 @@
+"""The one orchestrator of a site: its methods follow the data, in this order.
+
+    raw files --clean--> clean tables (reused while the raw files are unchanged)
+    clean tables --training_table--> drivers and outcomes per issue day
+    training table --train--> the site's models, saved under models/
+    models + clean tables --assess(as_of)--> the day's assessment --write_report--> reports/
+    training table --backtest--> forecasts and scores of past seasons --tune--> thresholds
+
+The command line and the scheduled service call only this class (and the service keeps its
+store, idempotency and notices); the core below it touches no file and reads no clock.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Iterable
+from dataclasses import dataclass
+from pathlib import Path
+
+import pandas as pd
+
+from cyanorisk.atomic import write_group
+from cyanorisk.backtest import BacktestResult, parse_seasons, walk_forward
+from cyanorisk.config import Config, Site
+from cyanorisk.forecast import Assessment, assess, default_as_of
+from cyanorisk.model import SiteModels
+from cyanorisk.pipeline.clean import CleanData, clean_site, file_digest
+from cyanorisk.pipeline.workspace import SiteWorkspace
+from cyanorisk.spec import SiteSpec, Thresholds
+from cyanorisk.training import fit_site, season_of, training_table
+from cyanorisk.tuning import Choice, thresholds_toml, tune_level
+
+Progress = Callable[[Iterable, int, str], Iterable]
+
+
+@dataclass
+class BacktestRun:
+    """A backtest of a site over a span of seasons, with what its page needs."""
+
+    result: BacktestResult
+    span: str
+    """The seasons replayed, as 'first-last' (season start years)."""
+    totals: pd.DataFrame
+    """The site's per-sample totals (for the season timelines)."""
+
+
+class SitePipeline:
+    """Everything cyanorisk does for one site, over its :class:`SiteWorkspace`.
+
+    Parameters
+    ----------
+    site : cyanorisk.config.Site
+        The site's settings (``site.spec`` is what the core computes with).
+    workspace : SiteWorkspace
+        Where its files are.
+    config_path : str
+        The configuration's name, for hints in messages.
+    """
+
+    def __init__(self, site: Site, workspace: SiteWorkspace, config_path: str = "") -> None:
+        self.site = site
+        self.workspace = workspace
+        self.config_path = config_path
+        self._digests: dict[str, str] | None = None
+        self._clean: CleanData | None = None
+        self._thresholds: Thresholds | None = None
+
+    @classmethod
+    def of(cls, config: Config, site: Site) -> SitePipeline:
+        """The pipeline of a configured site."""
+        return cls(site, SiteWorkspace.of(config, site.id), config.path)
+
+    @property
+    def spec(self) -> SiteSpec:
+        return self.site.spec
+
+    # inputs ------------------------------------------------------------------------------------
+
+    def raw_files(self) -> list[Path]:
+        """The site's weather files, then its lab files, as configured."""
+        samples = list(self.site.samples.files) if self.site.samples else []
+        return list(self.site.weather.files) + samples
+
+    def digests(self) -> dict[str, str]:
+        """Content hashes of the raw files (computed once per pipeline)."""
+        if self._digests is None:
+            self._digests = {str(p): file_digest(p) for p in self.raw_files()}
+        return self._digests
+
+    # 1. clean data -----------------------------------------------------------------------------
+
+    def clean(self, *, reuse: bool = True) -> CleanData:
+        """The clean tables: reused while the raw files and their settings are unchanged,
+        otherwise ingested (each raw file parsed again only if its bytes changed) and written."""
+        if self._clean is None or not reuse:
+            self._clean = clean_site(self.site, self.workspace, self.digests(), reuse=reuse)
+        return self._clean
+
+    # 2. training table -------------------------------------------------------------------------
+
+    def training_table(self) -> pd.DataFrame:
+        """Drivers for every issue day, the last count known then and the outcome labels."""
+        clean = self.clean()
+        return training_table(self.spec, clean.weather, clean.totals)
+
+    def write_training_table(self, table: pd.DataFrame, csv: bool = False) -> list[Path]:
+        target = self.workspace.training_table
+        writers = {target: lambda tmp: table.to_parquet(tmp, engine="pyarrow")}
+        if csv:
+            writers[target.with_suffix(".csv")] = lambda tmp: table.to_csv(tmp)
+        return write_group(writers)
+
+    # 3. train ----------------------------------------------------------------------------------
+
+    def train(self, table: pd.DataFrame | None = None, *,
+              cross_validation: bool = True) -> tuple[SiteModels, Path]:
+        """Fit the site's models, save them atomically, and return them with their file."""
+        models = fit_site(self.spec, self.training_table() if table is None else table,
+                          cross_validation=cross_validation)
+        path, text = self.workspace.model_text(models)
+        write_group({path: lambda tmp: tmp.write_text(text, encoding="utf-8")})
+        return models, path
+
+    def models(self) -> SiteModels:
+        return self.workspace.load_models(self.config_path)
+
+    def thresholds(self) -> Thresholds:
+        """The warning thresholds in force for the site (read once per pipeline)."""
+        if self._thresholds is None:
+            self._thresholds = self.workspace.load_thresholds(self.spec.levels)
+        return self._thresholds
+
+    # 4. assess and report ----------------------------------------------------------------------
+
+    def assess(self, as_of: pd.Timestamp | str | None = None) -> Assessment:
+        """The assessment of the local date ``as_of`` (default: the last day of the weather
+        record), from the clean data and the saved models."""
+        models = self.models()
+        thresholds = self.thresholds()
+        clean = self.clean()
+        day = (pd.Timestamp(as_of) if as_of is not None
+               else default_as_of(clean.weather, self.spec.timezone))
+        return assess(self.spec, models, clean.weather, clean.totals, day, thresholds, clean.rows)
+
+    def write_report(self, assessment: Assessment) -> list[Path]:
+        """Write the HTML, JSON and text renderings atomically, as a group."""
+        from cyanorisk.report.daily import render_html, render_json, render_text
+        from cyanorisk.report.document import report_stem
+
+        files = self.workspace.report_files(report_stem(assessment))
+        page, doc, text = render_html(assessment), render_json(assessment), render_text(assessment)
+        return write_group({
+            files["html"]: lambda tmp: tmp.write_text(page, encoding="utf-8"),
+            files["json"]: lambda tmp: tmp.write_text(doc, encoding="utf-8"),
+            files["txt"]: lambda tmp: tmp.write_text(text, encoding="utf-8"),
+        })
+
+    # 5. backtest and tune ----------------------------------------------------------------------
+
+    def backtest(self, seasons_text: str | None = None,
+                 progress: Progress | None = None) -> BacktestRun:
+        """The walk-forward backtest over the requested seasons ('2015-2022'; default: all but
+        the first)."""
+        table = self.training_table()
+        available = sorted(set(season_of(table["issue_date"], self.spec.season_start_month).tolist()))
+        seasons = parse_seasons(seasons_text, available)
+        totals = self.clean().totals
+        result = walk_forward(self.spec, table, totals, seasons, self.thresholds(), progress)
+        return BacktestRun(result, f"{seasons[0]}-{seasons[-1]}", totals)
+
+    def write_backtest(self, run: BacktestRun) -> list[Path]:
+        """Forecasts (CSV), scores per season and overall (CSV) and the page, as a group."""
+        from cyanorisk.report.backtest_page import render_backtest
+
+        spec = self.spec
+        cells = [t.value for lvl in spec.scheme.levels for t in lvl.thresholds
+                 if t.measure == "cyano_cells_per_ml"]
+        folder = self.workspace.backtest_folder(run.span)
+        result = run.result
+        page = render_backtest(spec.name, result, _season_counts(spec, run.totals), spec.levels,
+                               cells, run.span)
+        forecasts = result.forecasts[["site_id", "season", "issue_date", "level", "horizon_days",
+                                      "probability", "outcome", "climatology", "persistence",
+                                      "warned"]]
+        return write_group({
+            folder / "forecasts.csv": lambda tmp: forecasts.to_csv(tmp, index=False),
+            folder / "scores_by_season.csv": lambda tmp: result.scores.to_csv(tmp, index=False),
+            folder / "scores_overall.csv": lambda tmp: result.overall.to_csv(tmp, index=False),
+            folder / "backtest.html": lambda tmp: tmp.write_text(page, encoding="utf-8"),
+        })
+
+    def tune(self, run: BacktestRun, *, miss_cost: float | None,
+             target_hit_rate: float | None) -> tuple[list[Choice], list[str]]:
+        """Tune every level's threshold on a backtest; levels whose target cannot be met are
+        reported, not guessed."""
+        choices, problems = [], []
+        for level in self.spec.levels:
+            try:
+                choices.append(tune_level(run.result.forecasts, run.result.exceedances, level,
+                                          miss_cost=miss_cost, target_hit_rate=target_hit_rate))
+            except ValueError as exc:
+                problems.append(f"{level}: {exc}; its threshold is left as it was")
+        return choices, problems
+
+    def write_tuning(self, choices: list[Choice], span: str) -> list[Path]:
+        """The thresholds file (read by the daily report) and the trade-off plot."""
+        from cyanorisk.report.backtest_page import tradeoff_plot
+        from cyanorisk.report.figures import new_figure, png_bytes
+
+        fig, ax = new_figure(7, 3.5)
+        tradeoff_plot(choices, ax=ax)
+        tuned = {c.level for c in choices}
+        earlier = self.thresholds()
+        kept = ({level: v for level, v in earlier.warn_at.items() if level not in tuned}
+                if earlier.tuned else {})  # levels not tuned now keep their threshold
+        text = thresholds_toml(self.spec.site_id, choices, span, kept)
+        image = png_bytes(fig)
+        return write_group({
+            self.workspace.thresholds_file: lambda tmp: tmp.write_text(text, encoding="utf-8"),
+            self.workspace.tuning_plot(span): lambda tmp: tmp.write_bytes(image),
+        })
+
+
+def _season_counts(spec: SiteSpec, totals: pd.DataFrame) -> pd.DataFrame:
+    """Per-sample counts with their local date and season, for the timelines."""
+    if totals.empty:
+        return pd.DataFrame(columns=["date", "season", "cyano_cells_per_ml"])
+    local = totals["sampled_at"].dt.tz_convert(spec.timezone).dt.tz_localize(None)
+    return pd.DataFrame({"date": local, "season": season_of(local, spec.season_start_month),
+                         "cyano_cells_per_ml": totals["cyano_cells_per_ml"].to_numpy()})

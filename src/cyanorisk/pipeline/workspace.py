@@ -1,0 +1,180 @@
+"""Every file a site has on disk, in one place: nothing else in cyanorisk builds a path.
+
+Layout (``<site>`` is the site's id)::
+
+    data_dir/<site>/weather.parquet          clean weather series (regular UTC grid, flags)
+    data_dir/<site>/weather_rejects.csv      its rejects ledger
+    data_dir/<site>/samples.parquet          tidy lab records (one per sample and taxon)
+    data_dir/<site>/sample_totals.parquet    one row per sample
+    data_dir/<site>/samples_rejects.csv      their rejects ledger
+    data_dir/<site>/ingest_summary.json      what ingest read and did, and the key of its inputs
+    data_dir/<site>/training_table.parquet   written by `cyanorisk features` (and .csv)
+    data_dir/<site>/cache/                   parsed raw files, by content hash
+    data_dir/<site>/.run.lock                one run at a time for this site
+    models_dir/<site>.json                   the fitted models (JSON, checksummed)
+    models_dir/<site>.thresholds.toml        tuned warning thresholds
+    reports_dir/<site>/<site>_<date>.html    the daily report (.json, .txt beside it)
+    reports_dir/<site>/backtest_<seasons>/   forecasts.csv, scores, backtest.html
+    reports_dir/<site>/tuning_<seasons>.png  the tuning trade-off plot
+"""
+
+from __future__ import annotations
+
+import tomllib
+from dataclasses import dataclass
+from pathlib import Path
+from typing import TYPE_CHECKING
+
+from cyanorisk.errors import ModelFileError
+from cyanorisk.spec import Thresholds
+
+if TYPE_CHECKING:
+    from cyanorisk.config import Config
+    from cyanorisk.model import SiteModels
+
+
+@dataclass(frozen=True)
+class SiteWorkspace:
+    """The folders of one site and the files in them."""
+
+    site_id: str
+    data_dir: Path
+    models_dir: Path
+    reports_dir: Path
+    outbox_dir: Path
+    """Where notices are written (shared by the sites of an installation)."""
+
+    @classmethod
+    def of(cls, config: Config, site_id: str) -> SiteWorkspace:
+        """The workspace of a configured site."""
+        return cls(site_id, config.data_dir, config.models_dir, config.reports_dir, config.outbox)
+
+    # clean data ----------------------------------------------------------------------------------
+
+    @property
+    def folder(self) -> Path:
+        return self.data_dir / self.site_id
+
+    @property
+    def weather(self) -> Path:
+        return self.folder / "weather.parquet"
+
+    @property
+    def weather_rejects(self) -> Path:
+        return self.folder / "weather_rejects.csv"
+
+    @property
+    def samples(self) -> Path:
+        return self.folder / "samples.parquet"
+
+    @property
+    def sample_totals(self) -> Path:
+        return self.folder / "sample_totals.parquet"
+
+    @property
+    def samples_rejects(self) -> Path:
+        return self.folder / "samples_rejects.csv"
+
+    @property
+    def ingest_summary(self) -> Path:
+        return self.folder / "ingest_summary.json"
+
+    @property
+    def training_table(self) -> Path:
+        return self.folder / "training_table.parquet"
+
+    @property
+    def cache(self) -> Path:
+        return self.folder / "cache"
+
+    def cached(self, kind: str, key: str, suffix: str) -> Path:
+        """A parsed raw file in the cache: ``cache/<kind>-<key>.<suffix>``."""
+        return self.cache / f"{kind}-{key}.{suffix}"
+
+    @property
+    def lock(self) -> Path:
+        return self.folder / ".run.lock"
+
+    # models ------------------------------------------------------------------------------------
+
+    @property
+    def model_file(self) -> Path:
+        return self.models_dir / f"{self.site_id}.json"
+
+    @property
+    def thresholds_file(self) -> Path:
+        return self.models_dir / f"{self.site_id}.thresholds.toml"
+
+    def load_models(self, config_hint: str = "") -> SiteModels:
+        """The site's saved models.
+
+        Raises
+        ------
+        ModelFileError
+            Naming the file, when it is missing, unreadable, altered, or another site's.
+        """
+        from cyanorisk.model import read_bundle
+
+        path = self.model_file
+        if not path.exists():
+            hint = f" --config {config_hint}" if config_hint else ""
+            raise ModelFileError(f"{path}: no model for site '{self.site_id}'; run `cyanorisk "
+                                 f"train{hint}` first")
+        models = read_bundle(path)
+        if models.site_id != self.site_id:
+            raise ModelFileError(f"{path}: this model belongs to site '{models.site_id}', "
+                                 f"not '{self.site_id}'")
+        return models
+
+    def model_text(self, models: SiteModels) -> tuple[Path, str]:
+        """Where the models go and their file's text (written by the pipeline, atomically)."""
+        from cyanorisk.model import bundle_text
+
+        return self.model_file, bundle_text(models)
+
+    def load_thresholds(self, levels: list[str]) -> Thresholds:
+        """Warning thresholds of the site: the tuned ones when a thresholds file exists (levels
+        it does not name keep the default), else the default for every level.
+
+        Raises
+        ------
+        ModelFileError
+            When the thresholds file cannot be read or names levels the site's scheme lacks.
+        """
+        path = self.thresholds_file
+        default = Thresholds.default(levels)
+        if not path.exists():
+            return default
+        try:
+            data = tomllib.loads(path.read_text(encoding="utf-8"))
+            tuned = {str(k): float(v) for k, v in data["warn_at"].items()}
+        except (OSError, UnicodeDecodeError, tomllib.TOMLDecodeError, KeyError, TypeError,
+                AttributeError, ValueError) as exc:
+            raise ModelFileError(f"{path}: not a readable thresholds file ({exc})") from None
+        unknown = set(tuned) - set(levels)
+        if unknown or not all(0 < v < 1 for v in tuned.values()):
+            raise ModelFileError(f"{path}: levels {', '.join(sorted(unknown)) or '(none)'} are not "
+                                 f"in the scheme ({', '.join(levels)}), or a threshold is outside "
+                                 "(0, 1)")
+        return Thresholds({**default.warn_at, **tuned},
+                          f"tuned on the backtest of seasons {data.get('seasons', '?')} by "
+                          f"{data.get('rule', '?')} ({path})", tuned=True)
+
+    # reports -----------------------------------------------------------------------------------
+
+    @property
+    def report_folder(self) -> Path:
+        return self.reports_dir / self.site_id
+
+    def report_files(self, stem: str) -> dict[str, Path]:
+        """The daily report's three files, by suffix."""
+        return {s: self.report_folder / f"{stem}.{s}" for s in ("html", "json", "txt")}
+
+    def backtest_folder(self, span: str) -> Path:
+        return self.report_folder / f"backtest_{span}"
+
+    def tuning_plot(self, span: str) -> Path:
+        return self.report_folder / f"tuning_{span}.png"
+
+    def notice_file(self, name: str) -> Path:
+        return self.outbox_dir / name

@@ -1,0 +1,82 @@
+"""The report's JSON document, built from an :class:`~cyanorisk.forecast.Assessment` in this one
+place; the HTML page, the text summary and the store read it. Its schema is
+``src/cyanorisk/data/report.schema.json`` (``cyanorisk-report/1``): fields are only ever added.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import pandas as pd
+
+import cyanorisk
+from cyanorisk.forecast import Assessment
+from cyanorisk.levels import Scheme
+
+SCHEMA = "cyanorisk-report/1"
+
+
+def local_text(ts: pd.Timestamp | None, tz: str) -> str | None:
+    """An instant as local wall-clock text with the zone's abbreviation."""
+    if ts is None or pd.isna(ts):
+        return None
+    return pd.Timestamp(ts).tz_convert(tz).strftime("%Y-%m-%d %H:%M %Z")
+
+
+def scheme_content(scheme: Scheme) -> dict[str, Any]:
+    """The alert-level scheme as the report's JSON document carries it."""
+    return {"key": scheme.key, "title": scheme.title, "source": scheme.source,
+            "year": scheme.year, "levels": scheme.names,
+            "thresholds": [[{"measure": t.measure, "value": t.value, "inclusive": t.inclusive,
+                             "status": t.status} for t in lvl.thresholds] for lvl in scheme.levels]}
+
+
+def report_document(a: Assessment) -> dict[str, Any]:
+    """The JSON-ready document of an assessment (see the schema)."""
+    spec, f, o, fr, m = a.spec, a.forecast, a.observed, a.freshness, a.model
+    tz = spec.timezone
+    names = spec.levels
+    thresholds = f.thresholds
+    model: dict[str, Any] = {"cyanorisk_version": cyanorisk.__version__,
+                             "trained_with": m.trained_with, "training_window": m.training_window,
+                             "fingerprint": m.fingerprint}
+    if m.drivers is not None:
+        model["drivers"] = m.drivers
+    return {
+        "schema": SCHEMA,
+        "site": {"id": spec.site_id, "name": spec.name, "use": spec.use, "timezone": tz},
+        "as_of": str(a.as_of.date()), "issue_time_utc": a.issue.isoformat(),
+        "issue_time_local": local_text(a.issue, tz),
+        "status": a.status, "status_reasons": list(a.reasons), "headline": a.headline,
+        "scheme": scheme_content(spec.scheme),
+        "forecast": {
+            "level_rank": f.level_rank, "level": f.level, "horizon_days": f.horizon_days,
+            "probabilities": dict(f.probabilities),
+            "warn_at": {n: thresholds.at(n) for n in names} if thresholds else {},
+            "thresholds_source": thresholds.source if thresholds else "not applied",
+            "climatology": dict(f.climatology), "persistence": dict(f.persistence),
+            "expected_cells_per_ml": f.expected_cells_per_ml,
+            "interval_80_cells_per_ml": (list(f.interval_80_cells_per_ml)
+                                         if f.interval_80_cells_per_ml else None),
+            "drivers": list(f.drivers), "missing_drivers": list(f.missing_drivers),
+        },
+        "observed": {
+            "last_sampled_at": local_text(o.last_sampled_at, tz),
+            "known_since": local_text(o.known_since, tz),
+            "cyano_cells_per_ml": o.cyano_cells_per_ml, "censor": o.censor, "level": o.level,
+            "age_days": o.age_days,
+        },
+        "freshness": {"last_weather_utc": None if fr.last_weather is None
+                      else fr.last_weather.isoformat(),
+                      "last_weather_local": local_text(fr.last_weather, tz),
+                      "weather_age_days": fr.weather_age_days, "lab_delay_days": fr.lab_delay_days},
+        "quality": a.quality,
+        "cautions": list(a.cautions),
+        "deferral": a.deferral,
+        "model": model,
+    }
+
+
+def report_stem(a: Assessment) -> str:
+    """File name of a report without its suffix: ``<site id>_<date>``."""
+    return f"{a.spec.site_id}_{a.as_of.date()}"
