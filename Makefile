@@ -26,6 +26,7 @@ bench: $(STAMP)
 	$(BIN)/python benchmarks/bench_ingest.py
 	$(BIN)/python benchmarks/bench_features.py
 	$(BIN)/python benchmarks/bench_backtest.py
+	$(BIN)/python benchmarks/bench_cli.py
 
 clean:
 	rm -rf $(VENV) build src/*.egg-info .pytest_cache .ruff_cache

@@ -17,9 +17,10 @@ or the pieces by themselves: :func:`read_weather`, :func:`read_samples`, :class:
 from __future__ import annotations
 
 import importlib
-from typing import TYPE_CHECKING, Any
 
-__version__ = "0.2.0"
+from cyanorisk.version import __version__
+
+TYPE_CHECKING = False  # typing itself is not imported: `cyanorisk --version` stays instant
 
 _EXPORTS = {
     "load_config": "cyanorisk.config", "Config": "cyanorisk.config", "Site": "cyanorisk.config",
@@ -43,7 +44,7 @@ __all__ = ["__version__", "Assessment", "BacktestResult", "Config", "CyanoriskEr
            "training_table", "walk_forward"]
 
 
-def __getattr__(name: str) -> Any:
+def __getattr__(name: str) -> object:
     module = _EXPORTS.get(name)
     if module is None:
         raise AttributeError(f"module 'cyanorisk' has no attribute {name!r}")

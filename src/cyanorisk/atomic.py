@@ -43,8 +43,3 @@ def write_group(writers: dict[Path, Callable[[Path], None]]) -> list[Path]:
     for tmp, target in staged:
         os.replace(tmp, target)
     return [target for _, target in staged]
-
-
-def write_text(path: Path, text: str) -> Path:
-    """Write one text file atomically."""
-    return write_group({Path(path): lambda tmp: tmp.write_text(text, encoding="utf-8")})[0]

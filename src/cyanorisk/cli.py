@@ -10,22 +10,19 @@ from __future__ import annotations
 
 import sys
 from collections.abc import Callable, Iterable, Iterator
-from pathlib import Path
-from typing import TYPE_CHECKING, TypeVar
 
-from cyanorisk import __version__
 from cyanorisk.errors import EXIT_DATA, ConfigError, CyanoriskError
+from cyanorisk.version import __version__
 
+TYPE_CHECKING = False  # typing, pathlib and argparse wait until a command needs them
 if TYPE_CHECKING:
     import argparse
 
     from cyanorisk.config import Config
     from cyanorisk.pipeline import SitePipeline
 
-T = TypeVar("T")
 
-
-def progress(items: Iterable[T], total: int, label: str) -> Iterator[T]:
+def progress(items: Iterable, total: int, label: str) -> Iterator:
     """Yield ``items`` while drawing a progress bar on stderr (only on a terminal)."""
     show = sys.stderr.isatty()
     for i, item in enumerate(items, start=1):
@@ -241,31 +238,11 @@ def cmd_run(args: argparse.Namespace) -> int:
 def cmd_check(args: argparse.Namespace) -> int:
     """Validate the configuration and the layout of every weather and lab file, without
     ingesting."""
-    from cyanorisk.ingest.dialects import column_plan, sniff_layout
-    from cyanorisk.ingest.lines import read_text
-    from cyanorisk.ingest.samples import sniff_sheet
-
     config = _config(args)
-    for site in config.sites:
-        dialect = site.weather.parsing
-        print(f"{site.name} ({site.id}): {len(site.weather.files)} weather file(s), "
-              f"dialect '{site.weather.dialect}', zone {site.timezone}")
-        for path in site.weather.files:
-            layout = sniff_layout(read_text(path, dialect.encoding), dialect)
-            plan, ignored = column_plan(layout, path)
-            notes = "; ".join(layout.assumptions) or "layout as declared"
-            print(f"  {path.name}: {len(plan)} variable column(s)"
-                  + (f", ignored {', '.join(ignored)}" if ignored else "") + f" ({notes})")
-        if site.samples is not None:
-            layout = site.samples.parsing
-            print(f"  {len(site.samples.files)} lab file(s), layout '{site.samples.layout}' "
-                  f"({layout.shape})")
-            for path in site.samples.files:
-                table = sniff_sheet(read_text(path, layout.encoding), layout)
-                notes = "; ".join(table.assumptions) or "layout as declared"
-                print(f"  {path.name}: {len(table.header)} column(s) ({notes})")
-    print(f"{config.path}: configuration is valid")
-    return 0
+    status = each_site(config, lambda p: print("\n".join(p.check())))
+    if status == 0:
+        print(f"{config.path}: configuration is valid")
+    return status
 
 
 def cmd_demo(args: argparse.Namespace) -> int:
@@ -296,6 +273,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
 
 def build_parser() -> argparse.ArgumentParser:
     import argparse
+    from pathlib import Path
 
     parser = argparse.ArgumentParser(
         prog="cyanorisk",
@@ -363,13 +341,6 @@ def main(argv: list[str] | None = None) -> int:
     except OSError as exc:
         print(f"cyanorisk: {exc.filename or ''}: {exc.strerror or exc}", file=sys.stderr)
         return EXIT_DATA
-    except Exception as exc:  # a store or library error: one sentence, not a traceback
-        from cyanorisk.service.store import StoreError
-
-        if isinstance(exc, StoreError):
-            print(f"cyanorisk: {exc}", file=sys.stderr)
-            return EXIT_DATA
-        raise
 
 
 if __name__ == "__main__":

@@ -76,7 +76,21 @@ class BacktestError(CyanoriskError, ValueError):
     """A backtest that cannot be run as asked (e.g. seasons outside the data)."""
 
 
-class RunLockedError(CyanoriskError, RuntimeError):
-    """Another run holds the lock of a site."""
+class StoreError(CyanoriskError, RuntimeError):
+    """The store cannot be used (newer schema, unreachable database, busy, no store there)."""
 
     exit_status = EXIT_STORE
+
+
+class SiteLockedError(StoreError):
+    """Another process holds the lock of a site and day in a shared store."""
+
+
+class LockError(CyanoriskError, RuntimeError):
+    """A run lock cannot be taken (held elsewhere, or an unsafe lock path)."""
+
+    exit_status = EXIT_STORE
+
+
+class RunLockedError(LockError):
+    """Another run holds the lock of a site."""

@@ -40,9 +40,9 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-import cyanorisk
 from cyanorisk.drivers import DEFAULT_DRIVERS
 from cyanorisk.errors import ModelFileError
+from cyanorisk.version import __version__
 
 FORMAT = "cyanorisk-model"
 FORMAT_VERSION = 2
@@ -578,8 +578,8 @@ def bundle_text(models: SiteModels) -> str:
     """The JSON text of a model file (format, version, checksum and the models)."""
     body = models.to_dict()
     payload = {"format": FORMAT, "format_version": FORMAT_VERSION,
-               "cyanorisk_version": cyanorisk.__version__, "body": body,
-               "checksum": _checksum(body, cyanorisk.__version__)}
+               "cyanorisk_version": __version__, "body": body,
+               "checksum": _checksum(body, __version__)}
     return json.dumps(payload, indent=1, allow_nan=True)
 
 
@@ -598,10 +598,10 @@ def read_bundle(path: Path) -> SiteModels:
     if not isinstance(payload, dict) or payload.get("format") != FORMAT:
         raise ModelFileError(f"{path}: not a cyanorisk model file")
     if payload.get("format_version") != FORMAT_VERSION or \
-            payload.get("cyanorisk_version") != cyanorisk.__version__:
+            payload.get("cyanorisk_version") != __version__:
         raise ModelFileError(f"{path}: written by cyanorisk {payload.get('cyanorisk_version')} "
                              f"(format {payload.get('format_version')}); this is cyanorisk "
-                             f"{cyanorisk.__version__} (format {FORMAT_VERSION}): retrain with "
+                             f"{__version__} (format {FORMAT_VERSION}): retrain with "
                              "`cyanorisk train`")
     body = payload.get("body")
     if not isinstance(body, dict) or payload.get("checksum") != _checksum(

@@ -16,7 +16,6 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-import cyanorisk
 from cyanorisk.align import level_slug
 from cyanorisk.align import training_table as align_training_table
 from cyanorisk.features import FeatureBuilder
@@ -33,6 +32,7 @@ from cyanorisk.model import (
 )
 from cyanorisk.spec import SiteSpec
 from cyanorisk.verify import brier_score, roc_auc
+from cyanorisk.version import __version__
 
 
 def training_table(spec: SiteSpec, weather: pd.DataFrame,
@@ -144,7 +144,7 @@ def fit_site(spec: SiteSpec, table: pd.DataFrame, cross_validation: bool = True)
         "exceedances": {name: int((y[labelled] >= k).sum()) for k, name in enumerate(names, 1)},
         "coefficients": risk.coefficients().reset_index(names="driver").to_dict(orient="records"),
         "drivers": list(risk.drivers), "fingerprint": fingerprint(table),
-        "cyanorisk_version": cyanorisk.__version__,
+        "cyanorisk_version": __version__,
         "skill_in_sample": {"model": skill(in_sample, names),
                             "climatology": skill(in_sample, names, "climatology"),
                             "persistence": skill(in_sample, names, "persistence")},

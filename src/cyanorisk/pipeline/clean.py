@@ -20,7 +20,6 @@ from typing import Any
 
 import pandas as pd
 
-import cyanorisk
 from cyanorisk.atomic import write_group
 from cyanorisk.config import Site
 from cyanorisk.ingest.quality import LEDGER_COLUMNS
@@ -39,6 +38,7 @@ from cyanorisk.ingest.weather import (
     parse_weather_file,
 )
 from cyanorisk.pipeline.workspace import SiteWorkspace
+from cyanorisk.version import __version__
 
 
 @dataclass
@@ -94,7 +94,7 @@ def sample_settings(site: Site) -> dict[str, Any]:
 def inputs_key(site: Site, digests: dict[str, str]) -> str:
     """The key of a site's clean tables: its raw files' hashes and the settings that shape them."""
     taxa = {k: asdict(v) for k, v in site.samples.taxa.items()} if site.samples else None
-    return _key(cyanorisk.__version__, digests, weather_settings(site), sample_settings(site),
+    return _key(__version__, digests, weather_settings(site), sample_settings(site),
                 taxa, asdict(site.ingest), site.weather.period)
 
 
@@ -166,7 +166,7 @@ def _rejects_frame(records: list[dict]) -> pd.DataFrame:
 def _weather_file(site: Site, ws: SiteWorkspace, path: Path, digest: str,
                   used: set[Path]) -> WeatherFile:
     """One weather file's parsed rows, from the cache when its bytes were parsed before."""
-    key = _key(cyanorisk.__version__, digest, str(path), weather_settings(site))[:32]
+    key = _key(__version__, digest, str(path), weather_settings(site))[:32]
     table, info = ws.cached("weather", key, "parquet"), ws.cached("weather", key, "json")
     used.update((table, info))
     if table.exists() and info.exists():
@@ -186,7 +186,7 @@ def _weather_file(site: Site, ws: SiteWorkspace, path: Path, digest: str,
 def _sample_file(site: Site, ws: SiteWorkspace, path: Path, digest: str,
                  used: set[Path]) -> SampleFile:
     """One lab file's parsed records, from the cache when its bytes were parsed before."""
-    key = _key(cyanorisk.__version__, digest, str(path), sample_settings(site))[:32]
+    key = _key(__version__, digest, str(path), sample_settings(site))[:32]
     table, info = ws.cached("samples", key, "parquet"), ws.cached("samples", key, "json")
     used.update((table, info))
     if table.exists() and info.exists():

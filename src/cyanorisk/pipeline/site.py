@@ -86,6 +86,39 @@ class SitePipeline:
             self._digests = {str(p): file_digest(p) for p in self.raw_files()}
         return self._digests
 
+    def check(self) -> list[str]:
+        """Lines saying how each raw file's layout was resolved (declared or sniffed), without
+        ingesting anything.
+
+        Raises
+        ------
+        IngestError
+            Naming file, line and column of the first layout problem.
+        """
+        from cyanorisk.ingest.dialects import column_plan, sniff_layout
+        from cyanorisk.ingest.lines import read_text
+        from cyanorisk.ingest.samples import sniff_sheet
+
+        site = self.site
+        dialect = site.weather.parsing
+        lines = [f"{site.name} ({site.id}): {len(site.weather.files)} weather file(s), "
+                 f"dialect '{site.weather.dialect}', zone {site.timezone}"]
+        for path in site.weather.files:
+            layout = sniff_layout(read_text(path, dialect.encoding), dialect)
+            plan, ignored = column_plan(layout, path)
+            notes = "; ".join(layout.assumptions) or "layout as declared"
+            lines.append(f"  {path.name}: {len(plan)} variable column(s)"
+                         + (f", ignored {', '.join(ignored)}" if ignored else "") + f" ({notes})")
+        if site.samples is not None:
+            layout = site.samples.parsing
+            lines.append(f"  {len(site.samples.files)} lab file(s), layout '{site.samples.layout}' "
+                         f"({layout.shape})")
+            for path in site.samples.files:
+                table = sniff_sheet(read_text(path, layout.encoding), layout)
+                notes = "; ".join(table.assumptions) or "layout as declared"
+                lines.append(f"  {path.name}: {len(table.header)} column(s) ({notes})")
+        return lines
+
     # 1. clean data -----------------------------------------------------------------------------
 
     def clean(self, *, reuse: bool = True) -> CleanData:

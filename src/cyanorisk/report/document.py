@@ -9,9 +9,9 @@ from typing import Any
 
 import pandas as pd
 
-import cyanorisk
 from cyanorisk.forecast import Assessment
 from cyanorisk.levels import Scheme
+from cyanorisk.version import __version__
 
 SCHEMA = "cyanorisk-report/1"
 
@@ -37,7 +37,7 @@ def report_document(a: Assessment) -> dict[str, Any]:
     tz = spec.timezone
     names = spec.levels
     thresholds = f.thresholds
-    model: dict[str, Any] = {"cyanorisk_version": cyanorisk.__version__,
+    model: dict[str, Any] = {"cyanorisk_version": __version__,
                              "trained_with": m.trained_with, "training_window": m.training_window,
                              "fingerprint": m.fingerprint}
     if m.drivers is not None:

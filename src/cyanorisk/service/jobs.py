@@ -30,7 +30,6 @@ from typing import Any
 
 import pandas as pd
 
-import cyanorisk
 from cyanorisk.atomic import write_group
 from cyanorisk.config import Config, Site
 from cyanorisk.errors import RunLockedError
@@ -38,6 +37,7 @@ from cyanorisk.forecast import STATUS_NONE, Assessment, no_assessment
 from cyanorisk.pipeline import SitePipeline
 from cyanorisk.pipeline.clean import file_digest
 from cyanorisk.service.store import IssuedReport, Store
+from cyanorisk.version import __version__
 
 Clock = Callable[[], str]
 """Gives the current instant as ISO 8601 text (injected; the service passes the real clock)."""
@@ -97,7 +97,7 @@ def site_inputs(pipeline: SitePipeline) -> dict[str, Any]:
     return {"files": dict(pipeline.digests()),
             "model": file_digest(ws.model_file) if ws.model_file.exists() else None,
             "thresholds": file_digest(ws.thresholds_file) if ws.thresholds_file.exists() else None,
-            "cyanorisk_version": cyanorisk.__version__}
+            "cyanorisk_version": __version__}
 
 
 def fingerprint(as_of: str, inputs: dict[str, Any]) -> str:

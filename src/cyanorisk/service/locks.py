@@ -22,12 +22,12 @@ from types import TracebackType
 
 import filelock
 
+from cyanorisk.errors import LockError, RunLockedError
 
-class LockError(RuntimeError):
-    """The run lock cannot be taken (held elsewhere, or an unsafe lock path)."""
+__all__ = ["LockError", "LockHeldError", "RunLock"]
 
 
-class LockHeldError(LockError):
+class LockHeldError(RunLockedError):
     """Another process, or another lock in this process, holds the run lock."""
 
 

@@ -71,6 +71,8 @@ from sqlalchemy.dialects.sqlite import insert as sqlite_insert
 from sqlalchemy.engine import Connection, Dialect, Engine, make_url
 from sqlalchemy.exc import IntegrityError, SQLAlchemyError
 
+from cyanorisk.errors import SiteLockedError, StoreError
+
 SCHEMA_VERSION = 2
 """Version 1: the first schema (JSON and times as text everywhere, runs without an owner, no
 notices or locks). Version 2: runs record their owner and site; ``notices`` and ``locks``; on
@@ -253,14 +255,6 @@ INTERRUPTED = "the run did not finish (the process stopped)"
 # ---------------------------------------------------------------------------------------------
 # Errors, records, owners
 # ---------------------------------------------------------------------------------------------
-
-class StoreError(RuntimeError):
-    """The store cannot be used (newer schema, unreachable database, busy, no store there)."""
-
-
-class SiteLockedError(StoreError):
-    """Another process holds the lock of a site and day."""
-
 
 @dataclass
 class IssuedReport:
