@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import hashlib
 import json
+from collections.abc import Callable
 from dataclasses import asdict, dataclass
 from pathlib import Path
 from typing import Any
@@ -163,43 +164,54 @@ def _rejects_frame(records: list[dict]) -> pd.DataFrame:
     return frame.astype({"line": "int64"}).astype({c: object for c in LEDGER_COLUMNS if c != "line"})
 
 
-def _weather_file(site: Site, ws: SiteWorkspace, path: Path, digest: str,
-                  used: set[Path]) -> WeatherFile:
-    """One weather file's parsed rows, from the cache when its bytes were parsed before."""
-    key = _key(__version__, digest, str(path), weather_settings(site))[:32]
-    table, info = ws.cached("weather", key, "parquet"), ws.cached("weather", key, "json")
+def _cached(ws: SiteWorkspace, kind: str, key: str, used: set[Path],
+            load: Callable[[pd.DataFrame, dict], Any],
+            parse: Callable[[], tuple[Any, pd.DataFrame, dict]]) -> Any:
+    """A raw file's parse from the cache (a table and a JSON sidecar) when the same bytes were
+    parsed with the same settings before; else parsed now and kept."""
+    table, info = ws.cached(kind, key[:32], "parquet"), ws.cached(kind, key[:32], "json")
     used.update((table, info))
     if table.exists() and info.exists():
-        meta = json.loads(info.read_text(encoding="utf-8"))
-        return WeatherFile.from_frame(path, pd.read_parquet(table), _rejects_frame(meta["rejects"]),
-                                      meta["report"], meta["n_ambiguous"], meta["n_nonexistent"])
-    parsed = parse_weather_file(path, site.weather.parsing, site.timezone, site.interval,
-                                bad_rows=site.ingest.bad_rows)
-    meta = {"report": asdict(parsed.report), "rejects": parsed.rejects.to_dict("records"),
-            "n_ambiguous": parsed.n_ambiguous, "n_nonexistent": parsed.n_nonexistent}
-    frame = parsed.to_frame()
+        return load(pd.read_parquet(table), json.loads(info.read_text(encoding="utf-8")))
+    parsed, frame, meta = parse()
     write_group({table: lambda tmp: frame.to_parquet(tmp, engine="pyarrow"),
                  info: lambda tmp: tmp.write_text(json.dumps(meta, default=int), encoding="utf-8")})
     return parsed
 
 
+def _weather_file(site: Site, ws: SiteWorkspace, path: Path, digest: str,
+                  used: set[Path]) -> WeatherFile:
+    """One weather file's parsed rows, from the cache when its bytes were parsed before."""
+    def parse() -> tuple[WeatherFile, pd.DataFrame, dict]:
+        parsed = parse_weather_file(path, site.weather.parsing, site.timezone, site.interval,
+                                    bad_rows=site.ingest.bad_rows)
+        return parsed, parsed.to_frame(), {
+            "report": asdict(parsed.report), "rejects": parsed.rejects.to_dict("records"),
+            "n_ambiguous": parsed.n_ambiguous, "n_nonexistent": parsed.n_nonexistent}
+
+    def load(frame: pd.DataFrame, meta: dict) -> WeatherFile:
+        return WeatherFile.from_frame(path, frame, _rejects_frame(meta["rejects"]), meta["report"],
+                                      meta["n_ambiguous"], meta["n_nonexistent"])
+
+    key = _key(__version__, digest, str(path), weather_settings(site))
+    return _cached(ws, "weather", key, used, load, parse)
+
+
 def _sample_file(site: Site, ws: SiteWorkspace, path: Path, digest: str,
                  used: set[Path]) -> SampleFile:
     """One lab file's parsed records, from the cache when its bytes were parsed before."""
-    key = _key(__version__, digest, str(path), sample_settings(site))[:32]
-    table, info = ws.cached("samples", key, "parquet"), ws.cached("samples", key, "json")
-    used.update((table, info))
-    if table.exists() and info.exists():
-        meta = json.loads(info.read_text(encoding="utf-8"))
-        return SampleFile(path, pd.read_parquet(table), meta["rows_read"],
-                          _rejects_frame(meta["rejects"]), meta["notes"])
-    parsed = parse_sample_file(path, site.samples.parsing, site.timezone, site_id=site.id,
-                               bad_rows=site.ingest.bad_rows)
-    meta = {"rows_read": parsed.rows_read, "rejects": parsed.rejects.to_dict("records"),
-            "notes": parsed.notes}
-    write_group({table: lambda tmp: parsed.records.to_parquet(tmp, engine="pyarrow"),
-                 info: lambda tmp: tmp.write_text(json.dumps(meta, default=int), encoding="utf-8")})
-    return parsed
+    def parse() -> tuple[SampleFile, pd.DataFrame, dict]:
+        parsed = parse_sample_file(path, site.samples.parsing, site.timezone, site_id=site.id,
+                                   bad_rows=site.ingest.bad_rows)
+        return parsed, parsed.records, {"rows_read": parsed.rows_read, "notes": parsed.notes,
+                                        "rejects": parsed.rejects.to_dict("records")}
+
+    def load(frame: pd.DataFrame, meta: dict) -> SampleFile:
+        return SampleFile(path, frame, meta["rows_read"], _rejects_frame(meta["rejects"]),
+                          meta["notes"])
+
+    key = _key(__version__, digest, str(path), sample_settings(site))
+    return _cached(ws, "samples", key, used, load, parse)
 
 
 def _forget_unused(ws: SiteWorkspace, used: set[Path]) -> None:
