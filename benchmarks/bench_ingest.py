@@ -60,7 +60,7 @@ def _load(name: str):
 
 
 def ingest(path: Path) -> pd.DataFrame:
-    data, meta = read_weather(path, DIALECT, "30min", "Australia/Brisbane")
+    data, meta = read_weather(path, DIALECT, "30min", "Australia/Brisbane", bad_rows="reject")
     meta.account.check()
     return data
 

@@ -255,9 +255,10 @@ class FeatureBuilder:
             if family.variable not in series:
                 continue
             for param in s.params(family):
+                values = self._per_interval(family, series[family.variable], param)
                 for w in s.windows(family):
                     cols[family.name(w, param)] = self._reduce(family, series[family.variable],
-                                                               param, w, win)
+                                                               values, w, win)
             windows_of.setdefault(family.variable, set()).update(s.windows(family))
         if "air_temp_c" not in weather and {"air_temp_min_c", "air_temp_max_c"} <= set(weather):
             self._daily_min_max(weather, win, cols)
@@ -274,18 +275,20 @@ class FeatureBuilder:
             values = wind_at_2m(values, self.settings.anemometer_height_m)
         return _Series(values, usable, good, filled)
 
-    def _reduce(self, family: Driver, x: _Series, param: float | None, days: int,
+    def _per_interval(self, family: Driver, x: _Series, param: float | None) -> np.ndarray:
+        """The value each interval contributes to a family's windows (0 where unusable): the
+        amount above the base, the calm indicator, or the value itself."""
+        if family.condition == "excess":
+            return np.where(x.usable, np.maximum(x.values - param, 0.0), 0.0)
+        if family.condition == "calm":
+            return (x.usable & (x.values < self.settings.calm_threshold_ms)).astype(float)
+        return np.where(x.usable, x.values, 0.0)
+
+    def _reduce(self, family: Driver, x: _Series, values: np.ndarray, days: int,
                 win: _Windowed) -> np.ndarray:
         """One driver of a family over windows of ``days`` before each issue instant."""
-        if family.condition == "excess":
-            values = np.where(x.usable, np.maximum(x.values - param, 0.0), 0.0)
-        elif family.condition == "calm":
-            calm = x.usable & (x.values < self.settings.calm_threshold_ms)
-            if family.reducer is Reducer.LONGEST_RUN:
-                return self._longest_run(calm, win, days, x.good)
-            values = calm.astype(float)
-        else:
-            values = np.where(x.usable, x.values, 0.0)
+        if family.reducer is Reducer.LONGEST_RUN:
+            return self._longest_run(values > 0, win, days, x.good)
         if family.reducer is Reducer.TOTAL:
             return self._gate(win.total(values, days), win, x.good, days)
         mean = self._mean(win, values, x.usable, x.good, days)

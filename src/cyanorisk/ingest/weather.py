@@ -229,19 +229,16 @@ def assemble_weather(files: Sequence[WeatherFile], interval: str | pd.Timedelta,
                      encoding: str = "utf-8") -> tuple[pd.DataFrame, WeatherMeta]:
     """Put parsed files together on the regular grid: period, ranges, duplicates across files,
     off-grid readings, short gaps, flags; the row account is proved before anything is returned.
-    See :func:`read_weather`."""
+    See :func:`read_weather`. The files' rows are consumed (range checks write into them)."""
     _check_policy("off_grid", off_grid, OFF_GRID_POLICIES)
     _check_policy("duplicates", duplicates, DUPLICATE_POLICIES)
     step = pd.Timedelta(interval)
     step_ns = int(step.value)
     paths = [f.path for f in files]
     ledger = Ledger([f.rejects for f in files if len(f.rejects)])
-    parts = []
     for k, f in enumerate(files):
-        rows = f.rows.take(np.arange(len(f.rows.t)))  # a copy: range checks write into values
-        rows.file = np.full(len(rows.t), k, dtype=np.int32)
-        parts.append(rows)
-    rows = _concat(parts)
+        f.rows.file = np.full(len(f.rows.t), k, dtype=np.int32)
+    rows = _concat([f.rows for f in files])
     account = RowAccount(read=sum(f.report.rows_read for f in files))
     account.rejected = sum(len(p) for p in ledger.parts)
     rows = _keep_period(rows, period, timezone, paths, ledger, account)
