@@ -34,6 +34,8 @@ from cyanorisk.training import fit_models, season_of, training_table
 DEMO_SEASONS = list(range(2016, 2025))
 """Season start years of the 8-year demo record (14 January 2017 to 14 January 2025 local)."""
 FORECAST_COLUMNS = ["probability", "climatology", "persistence"]
+LEVELS = ["Vigilance", "Alert Level 1", "Alert Level 2"]
+"""The levels of the demo's scheme (WHO 1999 drinking water, REFERENCES.md)."""
 
 
 @dataclass
@@ -135,7 +137,8 @@ def test_forecasts_of_a_season_do_not_change_without_the_data_after_it(demo, res
     table = training_table(demo.spec, weather, totals)
     cut = walk_forward(demo.spec, table, totals, [season], demo.warn_at)
     want, got = season_rows(result.forecasts, season), season_rows(cut.forecasts, season)
-    assert len(want) == 2 * 365 + 2 * (season == 2019)  # two levels; 2020 was a leap year
+    n = len(demo.spec.levels)  # Vigilance, Alert Levels 1 and 2
+    assert len(want) == n * 365 + n * (season == 2019)  # 2020 was a leap year
     assert want["probability"].notna().all()  # the season was forecast
     pd.testing.assert_series_equal(got["issue_date"], want["issue_date"])
     pd.testing.assert_series_equal(got["level"], want["level"])
@@ -196,7 +199,8 @@ def test_a_season_without_an_exceedance_is_reported_not_dropped(result):
 
 def test_a_whole_season_without_an_exceedance_is_reported_for_every_level(demo):
     # The demo's 2020-21 counts capped below Alert Level 1 (2,000 cells/mL, WHO 1999): a quiet
-    # season, with the seasons around it as they were.
+    # season at both alert levels (cells are still seen: Vigilance), with the seasons around it
+    # as they were.
     site = demo.spec
     totals = demo.totals.copy()
     in_2020 = season_of(totals["sampled_at"].dt.tz_convert(site.timezone).dt.tz_localize(None),
@@ -206,9 +210,12 @@ def test_a_whole_season_without_an_exceedance_is_reported_for_every_level(demo):
         totals.loc[in_2020, column] = totals.loc[in_2020, column].clip(upper=1500.0)
     table = training_table(site, demo.weather, totals)
     quiet = walk_forward(site, table, totals, [2019, 2020, 2021], demo.warn_at)
-    assert quiet.exceedances.loc[quiet.exceedances["season"] == 2020, "first_exceedance"].isna().all()
+    alert_levels = [lvl for lvl in site.levels if lvl != "Vigilance"]
+    ex = quiet.exceedances
+    assert ex.loc[(ex["season"] == 2020) & ex["level"].isin(alert_levels),
+                  "first_exceedance"].isna().all()
     assert sorted(quiet.scores["season"].unique()) == [2019, 2020, 2021]
-    for level in site.levels:
+    for level in alert_levels:
         check_quiet(quiet.scores, 2020, level)
     assert sorted(quiet.overall["seasons"].unique()) == [3]
 
@@ -245,7 +252,7 @@ def test_a_season_without_enough_history_is_noted_and_kept(result):
     # 2017-18: only the half season from January 2017 was known before it
     assert any(n.startswith("season 2017: no forecast") for n in result.notes)
     rows = result.scores[(result.scores["season"] == 2017) & (result.scores["source"] == "model")]
-    assert len(rows) == 2
+    assert len(rows) == len(LEVELS)
     assert (rows["n"] == 0).all()
     assert rows["note"].str.contains("no forecast issued").all()
     f = result.forecasts[result.forecasts["season"] == 2017]
@@ -255,7 +262,7 @@ def test_a_season_without_enough_history_is_noted_and_kept(result):
 def test_a_season_without_forecasts_is_not_reported_as_missed(result):
     # 2017-18 was met at both levels, but the model issued no forecast: not a miss
     rows = result.scores[(result.scores["season"] == 2017) & (result.scores["source"] == "model")]
-    assert len(rows) == 2
+    assert len(rows) == len(LEVELS)
     assert result.exceedances.loc[result.exceedances["season"] == 2017,
                                   "first_exceedance"].notna().all()
     assert not rows["note"].str.contains("missed").any()
@@ -279,7 +286,7 @@ def test_model_beats_climatology_overall(result):
 
 def test_bootstrap_intervals_contain_the_point_estimates(result):
     overall = result.overall
-    assert len(overall) == 6  # two levels, three sources
+    assert len(overall) == len(LEVELS) * 3  # three sources
     for score in ("brier", "brier_skill", "roc_auc"):
         point, low, high = overall[score], overall[f"{score}_low"], overall[f"{score}_high"]
         assert point.notna().all() and low.notna().all() and high.notna().all(), score
@@ -290,7 +297,7 @@ def test_bootstrap_intervals_contain_the_point_estimates(result):
 
 def test_season_scores_follow_from_the_forecasts(result):
     # one row per season, level and source; the model's Brier score is that of its forecasts
-    assert len(result.scores) == (len(DEMO_SEASONS) - 1) * 2 * 3
+    assert len(result.scores) == (len(DEMO_SEASONS) - 1) * len(LEVELS) * 3
     f = season_rows(result.forecasts, 2020)
     for level in ("Alert Level 1", "Alert Level 2"):
         rows = f[f["level"] == level]
@@ -371,11 +378,11 @@ def test_backtest_command_writes_forecasts_scores_and_a_self_contained_page(demo
         np.testing.assert_allclose(merged[f"{column}_csv"], merged[column], rtol=0, atol=1e-9)
 
     by_season = pd.read_csv(folder / "scores_by_season.csv")
-    assert len(by_season) == 3 * 2 * 3  # seasons x levels x sources
+    assert len(by_season) == 3 * len(LEVELS) * 3  # seasons x levels x sources
     assert {"season", "level", "source", "n", "events", "brier", "brier_skill", "roc_auc",
             "lead_time_days", "note"} <= set(by_season.columns)
     overall = pd.read_csv(folder / "scores_overall.csv")
-    assert len(overall) == 2 * 3 and (overall["seasons"] == 3).all()
+    assert len(overall) == len(LEVELS) * 3 and (overall["seasons"] == 3).all()
     assert {"brier_skill_low", "brier_skill_high", "roc_auc_low", "roc_auc_high"} <= set(overall.columns)
 
     page = (folder / "backtest.html").read_text(encoding="utf-8")
@@ -386,10 +393,10 @@ def test_backtest_command_writes_forecasts_scores_and_a_self_contained_page(demo
     assert page.lstrip().startswith("<!DOCTYPE html>")
     assert check.outside == []  # no external resources
     assert re.findall(r"url\(|@import", page) == []
-    assert {"overall", "curves", "seasons", "timeline", "notes"} <= check.ids
+    assert {"summary", "overall", "warnings", "curves", "timeline", "notes"} <= check.ids
     assert "ROC and reliability" in page and "Season timelines" in page
     # ROC and reliability: one figure per level; timelines: one per season
-    assert len(check.images) == 2 + 3
+    assert len(check.images) == len(LEVELS) + 3
     for src in check.images:
         assert src.startswith("data:image/png;base64,")
         assert base64.b64decode(src.split(",", 1)[1])[:8] == b"\x89PNG\r\n\x1a\n"

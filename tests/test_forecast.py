@@ -25,15 +25,17 @@ from cyanorisk.config import load_config
 from cyanorisk.features import issue_instants
 from cyanorisk.forecast import STATUS_ASSESSED, STATUS_INSUFFICIENT, Assessment, assess
 from cyanorisk.ingest.samples import empty_totals
-from cyanorisk.levels import DEFERRAL, GENERAL_CAUTIONS, cautions
+from cyanorisk import words
+from cyanorisk.levels import DEFERRAL, GENERAL_CAUTIONS, Role, cautions
 from cyanorisk.pipeline import SitePipeline
 from cyanorisk.report.daily import render_json
 from cyanorisk.report.document import report_document
 from cyanorisk.spec import Thresholds
 
-SECTIONS = ["headline", "freshness", "probabilities", "expected-count", "drivers", "plots",
-            "quality", "cautions", "deferral", "model"]
-"""Section ids of the HTML page, in page order (cyanorisk.report.daily.render_html)."""
+SECTIONS = ["summary", "outlook", "lab", "cautions", "drivers", "freshness", "plots", "quality",
+            "model", "deferral"]
+"""Section ids of the HTML page, in page order (cyanorisk.report.daily.render_html): the
+summary strip and what a manager acts on first, then the details."""
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
 """The first eight bytes of every PNG file (PNG specification, ISO/IEC 15948, section 5.2)."""
 VOID = {"meta", "img", "br", "hr", "link", "input", "source", "col", "area", "base", "wbr"}
@@ -86,6 +88,7 @@ class Page(HTMLParser):
         self.open: list[str] = []
         self.nesting_errors: list[str] = []
         self._li: list[str] | None = None
+        self.meta: dict[str, str] = {}
         self.feed(text)
         self.close()
 
@@ -104,6 +107,8 @@ class Page(HTMLParser):
             self.items[self.section] = []
         if tag == "img":
             self.images.append((self.section, a))
+        if tag == "meta" and "name" in a:
+            self.meta[a["name"]] = a.get("content", "")
         if tag == "li":
             self._li = []
 
@@ -205,6 +210,11 @@ def test_report_writes_html_json_and_text_under_reports_site(written, demo_site)
     reached = [k for k, n in enumerate(report_document(assessment)["scheme"]["levels"], start=1)
                if f["probabilities"][n] >= f["warn_at"][n]]
     assert f["level_rank"] == max(reached, default=0)
+    # the level stated is the higher of the lab's level in force and the outlook's
+    c = report_document(assessment)
+    assert c["level_rank"] == max(c["in_force"]["level_rank"], f["level_rank"])
+    assert c["level_basis"] == ("lab" if c["in_force"]["level_rank"] >= f["level_rank"]
+                                else "outlook")
 
 
 def test_html_page_has_every_section_and_inline_plots_only(written):
@@ -215,6 +225,7 @@ def test_html_page_has_every_section_and_inline_plots_only(written):
     assert page.sections == SECTIONS
     # three plots, inline PNG images in the plots section
     assert [section for section, _ in page.images] == ["plots"] * 3
+    assert page.meta.get("viewport") == "width=device-width, initial-scale=1"  # phones
     for _, attrs in page.images:
         src = attrs["src"]
         assert src.startswith("data:image/png;base64,")
@@ -225,7 +236,7 @@ def test_html_page_has_every_section_and_inline_plots_only(written):
     assert [r for r in page.references if not r[2].startswith("data:")] == []
     assert "@import" not in page.style
     assert "url(" not in page.style
-    assert report_document(assessment)["headline"] in page.text["headline"]
+    assert report_document(assessment)["headline"] in page.text["summary"]
 
 
 def test_html_names_the_authority_in_the_deferral_and_lists_the_cautions(written, demo_site):
@@ -244,8 +255,9 @@ def test_json_report_validates_against_the_schema(written):
     assert document == json.loads(render_json(assessment))
     assert document["schema"] == "cyanorisk-report/1"
     probabilities = document["forecast"]["probabilities"]
-    assert list(probabilities) == ["Alert Level 1", "Alert Level 2"]
-    assert probabilities["Alert Level 2"] <= probabilities["Alert Level 1"]
+    assert list(probabilities) == ["Vigilance", "Alert Level 1", "Alert Level 2"]
+    p = list(probabilities.values())
+    assert p == sorted(p, reverse=True)  # a higher level is never more likely
 
 
 def test_text_summary_carries_headline_cautions_and_deferral(written):
@@ -301,17 +313,30 @@ def test_no_sample_for_60_days_gives_insufficient_data_and_no_level(demo_site, t
     assert c["status"] == STATUS_INSUFFICIENT
     assert c["status_reasons"] == [f"the last known sample is {age:.0f} days old (more than "
                                    f"{site.stale_sample_days:g})"]
-    assert c["headline"] == ("Insufficient data: " + c["status_reasons"][0]
-                             + ". No forecast level is given.")
+    lab = c["in_force"]
+    assert c["headline"] == (f"Insufficient data for an outlook: {c['status_reasons'][0]}. Level "
+                             f"in force from the lab: {lab['level']} (sample of "
+                             f"{words.date(pd.Timestamp(lab['set_by_sampled_at'][:16]))}).")
     assert (c["forecast"]["level_rank"], c["forecast"]["level"]) == (None, None)
+    # no withheld figure anywhere: probabilities, baselines and counts are null
+    f = c["forecast"]
+    assert [f[k] for k in ("probabilities", "climatology", "persistence", "peak_band",
+                           "expected_cells_per_ml", "interval_80_cells_per_ml")] == [None] * 6
+    assert f["drivers"] == []
+    # the level in force from the lab still stands, and the report says what to do
+    assert (c["level"], c["level_basis"]) == (lab["level"], "lab")
+    assert any(x.startswith("Take a sample") for x in c["actions"])
     assert c["observed"]["age_days"] == pytest.approx(age, abs=1e-9)
     assert c["deferral"] == DEFERRAL.format(authority=demo_site.site.authority)
     validate(strict_json(render_json(a)))
     paths = write_report(config, a)
     page = Page(paths[0].read_text(encoding="utf-8"))
     assert page.sections == SECTIONS
-    assert "Insufficient data" in page.text["headline"]
-    assert "No forecast level is given" in paths[2].read_text(encoding="utf-8")
+    assert "Insufficient data for an outlook" in page.text["summary"]
+    assert [section for section, _ in page.images] == ["plots"] * 2  # no outlook plot
+    assert "No outlook plot" in page.text["plots"]
+    assert "%" not in page.text["outlook"]
+    assert "Not given today" in paths[2].read_text(encoding="utf-8")
 
 
 def test_stale_weather_gives_insufficient_data(demo_site):
@@ -325,7 +350,8 @@ def test_stale_weather_gives_insufficient_data(demo_site):
     assert c["status"] == STATUS_INSUFFICIENT
     assert (f"the last weather reading is {age:.1f} days old "
             f"(more than {demo_site.spec.stale_weather_days:g})") in c["status_reasons"]
-    assert c["headline"].startswith("Insufficient data: the last weather reading is")
+    assert c["headline"].startswith("Insufficient data for an outlook: the last weather reading is")
+    assert any(x.startswith("Check the weather station") for x in c["actions"])
     assert (c["forecast"]["level_rank"], c["forecast"]["level"]) == (None, None)
     assert c["freshness"]["weather_age_days"] == pytest.approx(age, abs=1e-9)
     assert c["freshness"]["last_weather_utc"] == last_reading_end(demo_site).isoformat()
@@ -373,32 +399,15 @@ def test_stale_report_with_an_undecided_last_level_is_still_written(demo_site):
 
 def test_report_json_is_standard_json_when_a_driver_is_missing(demo_site):
     first = local_day(demo_site.weather.index[0], demo_site.site.timezone)
-    day = first + pd.Timedelta(days=15)  # the record is shorter than a 30-day window
+    day = first + pd.Timedelta(days=5)  # the record is shorter than a 7-day window
     a = assess_demo(demo_site, day)
-    assert "degree_days_15c_30d" in report_document(a)["forecast"]["missing_drivers"]
+    assert "water_temp_mean_c_7d" in report_document(a)["forecast"]["missing_drivers"]
     validate(strict_json(render_json(a)))
 
 
 # ---------------------------------------------------------------------------------------------
 # Cautions and the deferral statement
 # ---------------------------------------------------------------------------------------------
-
-@pytest.mark.parametrize("rank", [0, 1, 2])
-def test_drinking_and_recreation_cautions_differ(rank):
-    drinking, recreation = cautions(rank, "drinking"), cautions(rank, "recreation")
-    own_drinking = [x for x in drinking if x not in GENERAL_CAUTIONS]
-    own_recreation = [x for x in recreation if x not in GENERAL_CAUTIONS]
-    if rank == 0:  # below the first level both keep routine monitoring
-        assert own_drinking == own_recreation == ["Routine monitoring: keep the usual sampling "
-                                                  "schedule."]
-    else:
-        assert own_drinking
-        assert own_recreation
-        assert set(own_drinking).isdisjoint(own_recreation)
-    general = [x for x in drinking if x in GENERAL_CAUTIONS]
-    assert general == ([] if rank == 0 else list(GENERAL_CAUTIONS))
-    assert [x for x in recreation if x in GENERAL_CAUTIONS] == general
-
 
 def test_general_cautions_say_what_they_must():
     text = " ".join(GENERAL_CAUTIONS)
@@ -411,15 +420,19 @@ def assert_general_cautions(content: dict, present: bool) -> None:
     assert [words in listed for words in GENERAL_KEYWORDS] == [present] * len(GENERAL_KEYWORDS)
 
 
-def test_reports_above_level_0_carry_the_general_cautions_for_either_use(demo_site):
+def test_reports_at_an_alert_level_carry_the_general_cautions_for_either_use(demo_site):
     day, drinking = find_day(demo_site, lambda c: c["status"] == STATUS_ASSESSED
-                             and c["forecast"]["level_rank"] >= 1)
-    rank = report_document(drinking)["forecast"]["level_rank"]
+                             and c["level"] in ("Alert Level 1", "Alert Level 2"))
+    rank = drinking.level_rank
+    role = demo_site.spec.scheme.role(rank)
+    assert role in (Role.ALERT, Role.ACTION)
     recreation_site = dataclasses.replace(demo_site.spec, use="recreation")
     recreation = assess_demo(demo_site, day, spec=recreation_site)
-    assert report_document(recreation)["forecast"]["level_rank"] == rank  # same model, same day
-    assert report_document(drinking)["cautions"] == list(cautions(rank, "drinking"))
-    assert report_document(recreation)["cautions"] == list(cautions(rank, "recreation"))
+    assert recreation.level_rank == rank  # same model, same day
+    assert report_document(drinking)["cautions"][:len(cautions(role, "drinking"))] == list(
+        cautions(role, "drinking"))
+    assert report_document(recreation)["cautions"][:len(cautions(role, "recreation"))] == list(
+        cautions(role, "recreation"))
     assert report_document(drinking)["cautions"] != report_document(recreation)["cautions"]
     for a in (drinking, recreation):
         assert_general_cautions(report_document(a), present=True)
@@ -427,10 +440,9 @@ def test_reports_above_level_0_carry_the_general_cautions_for_either_use(demo_si
         validate(strict_json(render_json(a)))
 
 
-def test_a_report_below_level_1_has_routine_cautions_and_the_deferral(demo_site):
-    _, a = find_day(demo_site, lambda c: c["status"] == STATUS_ASSESSED
-                    and c["forecast"]["level_rank"] == 0)
-    assert report_document(a)["cautions"] == list(cautions(0, "drinking"))
+def test_a_report_below_every_level_has_routine_cautions_and_the_deferral(demo_site):
+    _, a = find_day(demo_site, lambda c: c["status"] == STATUS_ASSESSED and c["level_rank"] == 0)
+    assert report_document(a)["cautions"] == list(cautions(Role.NONE, "drinking"))
     assert_general_cautions(report_document(a), present=False)
     assert report_document(a)["deferral"] == DEFERRAL.format(authority=demo_site.site.authority)
 

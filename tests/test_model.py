@@ -510,7 +510,7 @@ def test_model_ranks_demo_issue_days_better_than_climatology(demo_site):
     spec, table = demo_site.spec, demo_site.table
     cv = training.cross_validate(spec, table)
     names = spec.levels
-    assert names[0] == "Alert Level 1"
+    assert names == ["Vigilance", "Alert Level 1", "Alert Level 2"]
     # every season with labels was forecast by models fitted on the other seasons
     X = prepare(table)
     y = ordinal_outcome(X, training.label_columns(spec))
@@ -519,8 +519,9 @@ def test_model_ranks_demo_issue_days_better_than_climatology(demo_site):
     assert len(cv) == int((~np.isnan(y)).sum())
     model = training.skill(cv, names)["Alert Level 1"]["roc_auc"]
     climatology = training.skill(cv, names, "climatology")["Alert Level 1"]["roc_auc"]
-    # cyanorisk.verify.roc_auc agrees with the reference library (scikit-learn)
-    assert model == pytest.approx(roc_auc_score(cv["outcome_1"], cv["model_1"]), abs=1e-12)
-    assert climatology == pytest.approx(roc_auc_score(cv["outcome_1"], cv["climatology_1"]),
+    # cyanorisk.verify.roc_auc agrees with the reference library (scikit-learn); Alert Level 1
+    # is the second level (outcome_2)
+    assert model == pytest.approx(roc_auc_score(cv["outcome_2"], cv["model_2"]), abs=1e-12)
+    assert climatology == pytest.approx(roc_auc_score(cv["outcome_2"], cv["climatology_2"]),
                                         abs=1e-12)
     assert model > climatology

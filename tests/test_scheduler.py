@@ -16,6 +16,7 @@
 from __future__ import annotations
 
 import dataclasses
+import json
 import re
 import shutil
 import signal
@@ -52,7 +53,8 @@ from cyanorisk.service.store import IssuedReport, Store
 
 SITE = "tallowbark"
 MELBOURNE = ZoneInfo("Australia/Melbourne")
-ALERT1 = "Alert Level 1"
+ALERT1 = "Vigilance"
+"""The level stated on SERVE_DAY and RUN_DAY of the 8-year demo (see tests/test_jobs.py)."""
 HOUR = timedelta(hours=1)
 
 
@@ -377,7 +379,7 @@ def test_listeners_on_a_running_scheduler(tmp_path, demo_site):
 # End to end: serve, status, run
 # ---------------------------------------------------------------------------------------------
 
-SERVE_DAY, RUN_DAY = "2024-12-05", "2024-12-06"
+SERVE_DAY, RUN_DAY = "2024-11-30", "2024-12-01"
 
 
 def test_serve_then_status_then_run(tmp_path, demo_site, capsys):
@@ -422,9 +424,12 @@ def test_serve_then_status_then_run(tmp_path, demo_site, capsys):
         (rec,) = store.reports(SITE, SERVE_DAY)  # served every second, still one revision
     issuing = next(r for r in runs if r["id"] == rec.run_id)
     assert issuing["status"] == "ok"
+    doc = json.loads(next(p for p in rec.paths if p.endswith(".json")) and
+                     Path(next(p for p in rec.paths if p.endswith(".json"))).read_text("utf-8"))
+    age = doc["observed"]["age_days"]
     assert lines[0] == (f"Tallowbark Reservoir (tallowbark): last report for {SERVE_DAY} (revision 1), "
                         f"status assessed, level {ALERT1}; run {rec.run_id} ok at {rec.issued_at}; "
-                        "weather 0 h old, last sample 2 days old at issue")
+                        f"weather 0 h old, last sample {age:.0f} days old at issue")
     assert re.fullmatch(rf"last run: {SERVE_DAY} started \S+, status ok", lines[1])
     assert len(lines) == 2
 
@@ -478,7 +483,7 @@ def test_status_after_a_failed_day(tmp_path, demo_site, capsys):
     assert main(["status", "--config", str(path)]) == 0
     lines = capsys.readouterr().out.splitlines()
     assert re.fullmatch(rf"Tallowbark Reservoir \(tallowbark\): last report for {RUN_DAY} \(revision 1\), "
-                        r"status no assessment today, level none; run 1 partial at \S+; "
+                        r"status no assessment today, level below Vigilance; run 1 partial at \S+; "
                         r"no weather, last sample n/a old at issue", lines[0])
     assert re.fullmatch(rf"last run: {RUN_DAY} started \S+, status partial \(tallowbark: .+\)", lines[1])
 

@@ -222,36 +222,87 @@ def thresholds_file(config_path: Path) -> Path:
     return config_path.parent / "models" / f"{SITE_ID}.thresholds.toml"
 
 
-def test_tune_writes_thresholds_and_plot_and_the_next_report_applies_them(demo, result, tmp_path,
-                                                                          capsys):
+def proposal_file(config_path: Path) -> Path:
+    return config_path.parent / "models" / f"{SITE_ID}.thresholds.proposed.toml"
+
+
+def report_forecast(config: Path, capsys) -> dict:
+    """The forecast block of the report `cyanorisk report` writes for the demo's last day."""
+    assert main(["report", "--config", str(config)]) == 0
+    capsys.readouterr()
+    path = config.parent / "reports" / SITE_ID / f"{SITE_ID}_2025-01-14.json"  # the last day
+    return json.loads(path.read_text(encoding="utf-8"))["forecast"]
+
+
+def test_tune_proposes_and_only_an_accepted_proposal_is_applied(demo, result, tmp_path, capsys):
     config = demo.config_copy(tmp_path)
     assert main(["tune", "--config", str(config), "--miss-cost", "5"]) == 0
     out = capsys.readouterr().out
-    path = thresholds_file(config)
+    proposal = proposal_file(config)
     plot = tmp_path / "reports" / SITE_ID / "tuning_2017-2024.png"  # all seasons but the first
-    assert f"wrote {path}" in out and f"wrote {plot}" in out
+    assert f"wrote {proposal}" in out and f"wrote {plot}" in out
+    assert "the proposal is not in force" in out and "--accept" in out
     assert plot.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
-    tuned = tomllib.loads(path.read_text(encoding="utf-8"))
+    tuned = tomllib.loads(proposal.read_text(encoding="utf-8"))
     names = demo.spec.levels
-    assert tuned["site_id"] == SITE_ID
-    assert tuned["seasons"] == "2017-2024"
+    assert (tuned["site_id"], tuned["seasons"]) == (SITE_ID, "2017-2024")
     assert tuned["rule"] == "miss cost 5 (a missed exceedance costs 5 false alarms)"
     assert sorted(tuned["warn_at"]) == sorted(names)
-
     # the thresholds the library chooses on the same backtest, written to 2 decimals
     for name in names:
         want = tune_level(result.forecasts, result.exceedances, name, miss_cost=5, n_boot=0)
         assert tuned["warn_at"][name] == pytest.approx(want.threshold, abs=1e-9), name
+    # not accepted yet: the report keeps the thresholds in force (here the default)
+    assert not thresholds_file(config).exists()
+    assert report_forecast(config, capsys)["warn_at"] == {n: DEFAULT_WARN_AT for n in names}
 
-    assert main(["report", "--config", str(config)]) == 0
-    capsys.readouterr()
-    reports = sorted((tmp_path / "reports" / SITE_ID).glob(f"{SITE_ID}_*.json"))
-    assert [p.name for p in reports] == [f"{SITE_ID}_2025-01-14.json"]  # the last day of the demo
-    forecast = json.loads(reports[0].read_text(encoding="utf-8"))["forecast"]
+    assert main(["tune", "--config", str(config), "--accept"]) == 0
+    assert f"wrote {thresholds_file(config)}" in capsys.readouterr().out
+    in_force = tomllib.loads(thresholds_file(config).read_text(encoding="utf-8"))
+    assert in_force["warn_at"] == tuned["warn_at"]
+    assert pd.Timestamp(in_force["accepted_at"]).tzinfo is not None  # when, in UTC
+    forecast = report_forecast(config, capsys)
     assert forecast["warn_at"] == pytest.approx(tuned["warn_at"], abs=1e-12)
-    assert str(path) in forecast["thresholds_source"]
-    assert "seasons 2017-2024" in forecast["thresholds_source"]
-    assert "miss cost 5" in forecast["thresholds_source"]
+    source = forecast["thresholds_source"]
+    assert str(thresholds_file(config)) in source and "seasons 2017-2024" in source
+    assert "miss cost 5" in source and f"accepted {in_force['accepted_at']}" in source
+
+
+def test_accept_without_a_proposal_names_the_file(demo, tmp_path, capsys):
+    config = demo.config_copy(tmp_path)
+    assert main(["tune", "--config", str(config), "--accept"]) == 1
+    assert capsys.readouterr().err.strip() == (
+        f"cyanorisk: {proposal_file(config)}: no thresholds proposal for site '{SITE_ID}'; run "
+        "`cyanorisk tune` first")
+
+
+@pytest.mark.parametrize(("flags", "option", "words"), [
+    (["--miss-cost", "-1"], "--miss-cost", "-1 is not a cost"),
+    (["--miss-cost", "0"], "--miss-cost", "0 is not a cost"),
+    (["--target-hit-rate", "1.5"], "--target-hit-rate", "1.5 is not a hit rate"),
+    (["--target-hit-rate", "0"], "--target-hit-rate", "0 is not a hit rate"),
+    (["--accept", "--miss-cost", "5"], "--accept", "give it alone"),
+])
+def test_tune_refuses_a_value_it_cannot_take_in_one_sentence(demo, tmp_path, capsys, flags,
+                                                              option, words):
+    config = demo.config_copy(tmp_path)
+    assert main(["tune", "--config", str(config), *flags]) == 2
+    captured = capsys.readouterr()
+    (line,) = captured.err.strip().splitlines()
+    assert line.startswith(f"cyanorisk: option {option}: ") and words in line
+    assert captured.out == ""
+    assert not proposal_file(config).exists()
+
+
+def test_an_unstable_choice_is_said_plainly():
+    # hand-made: two seasons that want very different thresholds
+    from cyanorisk.tuning import Choice
+
+    wide = Choice("L1", 0.2, "miss cost 5", pd.DataFrame(), np.array([0.02] * 50 + [0.37] * 50))
+    narrow = Choice("L1", 0.2, "miss cost 5", pd.DataFrame(), np.array([0.18] * 50 + [0.22] * 50))
+    assert wide.unstable and "unstable across seasons" in wide.verdict()
+    assert "0.02 to 0.37" in wide.verdict()
+    assert not narrow.unstable and narrow.verdict().startswith("stable across seasons")
 
 
 def test_report_without_a_thresholds_file_uses_the_default(demo, tmp_path, capsys):
@@ -266,26 +317,27 @@ def test_report_without_a_thresholds_file_uses_the_default(demo, tmp_path, capsy
 
 def test_a_level_whose_target_cannot_be_met_keeps_its_earlier_threshold(demo, result, tmp_path,
                                                                          capsys):
-    # A target hit rate between the best of Alert Level 2 (about 97% on the demo) and the best
-    # of Alert Level 1 (about 98%) can be met for the first level only.
-    low, high = best_hit_rate(result, "Alert Level 2"), best_hit_rate(result, "Alert Level 1")
-    assert low < high
-    target = (low + high) / 2
+    # A target hit rate between the best hit rates of two levels can be met for one of them only.
+    best = {name: best_hit_rate(result, name) for name in demo.spec.levels}
+    met, unmet = max(best, key=best.get), min(best, key=best.get)
+    assert best[unmet] < best[met]
+    target = (best[unmet] + best[met]) / 2
     config = demo.config_copy(tmp_path)
     path = thresholds_file(config)
     path.write_text(f'site_id = "{SITE_ID}"\nrule = "by hand"\nseasons = "2017-2024"\n\n'
-                    '[warn_at]\n"Alert Level 1" = 0.99\n"Alert Level 2" = 0.2\n', encoding="utf-8")
+                    f'[warn_at]\n"{met}" = 0.99\n"{unmet}" = 0.2\n', encoding="utf-8")
     assert main(["tune", "--config", str(config), "--target-hit-rate", f"{target:.6f}"]) == 0
     out = capsys.readouterr().out
-    assert "  Alert Level 1: target hit rate" in out
-    assert re.search(r"Alert Level 2: no threshold reaches a hit rate of .*; its threshold is left "
+    assert f"  {met}: target hit rate" in out
+    assert re.search(rf"{unmet}: no threshold reaches a hit rate of .*; its threshold is left "
                      r"as it was", out)
+    assert main(["tune", "--config", str(config), "--accept"]) == 0
     warn_at = thresholds_for(config).warn_at
-    assert warn_at["Alert Level 1"] == pytest.approx(
-        choose_by_hit_rate(sweep(result.forecasts[result.forecasts["level"] == "Alert Level 1"]
+    assert warn_at[met] == pytest.approx(
+        choose_by_hit_rate(sweep(result.forecasts[result.forecasts["level"] == met]
                                  .dropna(subset=["probability"]), result.exceedances,
                                  lead_times=False), target), abs=1e-9)  # tuned anew
-    assert warn_at["Alert Level 2"] == pytest.approx(0.2, abs=1e-9)  # left as it was
+    assert warn_at[unmet] == pytest.approx(0.2, abs=1e-9)  # left as it was
 
 
 @pytest.mark.parametrize(("body", "problem"), [

@@ -25,7 +25,14 @@ from cyanorisk.levels import meets
 from cyanorisk.model import PersistenceModel, ordinal_outcome, prepare
 from cyanorisk.spec import SiteSpec, Thresholds
 from cyanorisk.training import fit_models, label_columns, season_of
-from cyanorisk.verify import brier_score, brier_skill_score, contingency, lead_time_days, roc_auc
+from cyanorisk.verify import (
+    brier_score,
+    brier_skill_score,
+    contingency,
+    event_counts,
+    lead_time_days,
+    roc_auc,
+)
 
 MIN_HISTORY_DAYS = 300
 """Labelled issue days a season's model needs to have learned from (about a season's worth):
@@ -43,10 +50,13 @@ class BacktestResult:
     """One row per issue day and level: site_id, season, issue_date, level, horizon_days,
     probability, outcome, climatology, persistence, warned (probability >= warn_at)."""
     scores: pd.DataFrame
-    """Per season, level and source: n, events, brier, brier_skill (vs climatology), roc_auc,
-    contingency scores at the warning threshold, lead_time_days and a note."""
+    """Per season, level and source: n, events (labelled days with an exceedance), brier,
+    brier_skill (vs climatology), roc_auc, contingency scores at the warning threshold in days
+    (hits, misses, false_alarms, ...) and in events (exceedance_events, event_hits,
+    event_misses, false_alarm_spells), lead_time_days and a note."""
     overall: pd.DataFrame
-    """Per level and source, pooled over seasons, with 90% bootstrap intervals by season."""
+    """Per level and source, pooled over seasons, with 90% bootstrap intervals by season; and
+    ``brier_skill_persistence``, the Brier skill against persistence on the days both forecast."""
     exceedances: pd.DataFrame
     """Per season and level: the first sample that met the level (NaT if none)."""
     notes: list[str]
@@ -159,6 +169,9 @@ def _scores(block: pd.DataFrame, source: str, warn_at: float | None,
     if source != "climatology" and warn_at is not None:
         out.update(contingency(p, o, warn_at))
         warned = (p >= warn_at) & ~np.isnan(p)
+        counted = event_counts(block["issue_date"].to_numpy(), warned, o)
+        out.update({k: v for k, v in counted.items() if k != "events"})
+        out["exceedance_events"] = counted["events"]
         exceed_dates = [] if exceed is None or pd.isna(exceed) else [exceed]
         out["lead_time_days"] = lead_time_days(block["issue_date"].to_numpy(), warned, exceed_dates,
                                                int(block["horizon_days"].iloc[0]))
@@ -219,5 +232,9 @@ def overall_scores(forecasts: pd.DataFrame, names: list[str], n_boot: int = 200,
                          "brier": point[0], "brier_low": lo[0], "brier_high": hi[0],
                          "brier_skill": point[1], "brier_skill_low": lo[1],
                          "brier_skill_high": hi[1], "roc_auc": point[2], "roc_auc_low": lo[2],
-                         "roc_auc_high": hi[2]})
+                         "roc_auc_high": hi[2],
+                         "brier_skill_persistence": brier_skill_score(
+                             f[COLUMN[source]].to_numpy(dtype=float),
+                             f["outcome"].to_numpy(dtype=float),
+                             f["persistence"].to_numpy(dtype=float))})
     return pd.DataFrame(rows)

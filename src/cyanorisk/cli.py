@@ -11,7 +11,7 @@ from __future__ import annotations
 import sys
 from collections.abc import Callable, Iterable, Iterator
 
-from cyanorisk.errors import EXIT_DATA, ConfigError, CyanoriskError
+from cyanorisk.errors import EXIT_DATA, EXIT_INSUFFICIENT, ConfigError, CyanoriskError, OptionError
 from cyanorisk.version import __version__
 
 TYPE_CHECKING = False  # typing, pathlib and argparse wait until a command needs them
@@ -41,20 +41,29 @@ def _config(args: argparse.Namespace, check_files: bool = True) -> Config:
     return load_config(args.config, check_files=check_files)
 
 
-def each_site(config: Config, work: Callable[[SitePipeline], None], label: str = "") -> int:
+def each_site(config: Config, work: Callable[[SitePipeline], int | None], label: str = "") -> int:
     """Do ``work`` for every site, one after another; a site that fails is told in one sentence
-    on stderr and the others go on. Returns the exit status (the worst of the sites')."""
+    on stderr and the others go on. Returns the exit status: the worst of the sites' (a data or
+    configuration problem before an insufficient-data report)."""
     from cyanorisk.pipeline import SitePipeline
 
-    status = 0
+    statuses = [0]
     sites = config.sites
     for site in progress(sites, len(sites), label) if label else sites:
         try:
-            work(SitePipeline.of(config, site))
+            statuses.append(work(SitePipeline.of(config, site)) or 0)
         except CyanoriskError as exc:
             print(f"cyanorisk: {exc}", file=sys.stderr)
-            status = max(status, exc.exit_status)
-    return status
+            statuses.append(exc.exit_status)
+    return worst(statuses)
+
+
+def worst(statuses: list[int]) -> int:
+    """The exit status of several: a failure (1, 2, 4) before insufficient data (3) before 0."""
+    failures = [s for s in statuses if s not in (0, EXIT_INSUFFICIENT)]
+    if failures:
+        return max(failures)
+    return EXIT_INSUFFICIENT if EXIT_INSUFFICIENT in statuses else 0
 
 
 def cmd_ingest(args: argparse.Namespace) -> int:
@@ -107,17 +116,25 @@ def cmd_train(args: argparse.Namespace) -> int:
     return each_site(_config(args), work)
 
 
-def _report(pipeline: SitePipeline, as_of) -> None:
+def _report(pipeline: SitePipeline, as_of, store_url: str) -> int:
+    from cyanorisk.forecast import STATUS_ASSESSED, changes_since
+    from cyanorisk.service.history import previous_from
+
     assessment = pipeline.assess(as_of)
+    assessment.changes = changes_since(assessment, previous_from(
+        store_url, pipeline.spec.site_id, str(assessment.as_of.date())))
     paths = pipeline.write_report(assessment)
     print(f"{pipeline.spec.name}: {assessment.headline}")
     for p in paths:
         print(f"  wrote {p}")
+    return 0 if assessment.status == STATUS_ASSESSED else EXIT_INSUFFICIENT
 
 
 def cmd_report(args: argparse.Namespace) -> int:
-    """Write each site's daily report (HTML, JSON, text) under reports/."""
-    return each_site(_config(args), lambda p: _report(p, args.as_of))
+    """Write each site's daily report (HTML, JSON, text) under reports/. Exit status 3 when a
+    site's data were insufficient for an outlook (the report says so and is written)."""
+    config = _config(args)
+    return each_site(config, lambda p: _report(p, args.as_of, config.store_url))
 
 
 def cmd_backtest(args: argparse.Namespace) -> int:
@@ -138,9 +155,12 @@ def _backtest(pipeline: SitePipeline, seasons: str | None) -> None:
               f"{r['roc_auc_high']:.3f}] (climatology {clim['roc_auc']:.3f}); Brier skill "
               f"vs climatology {r['brier_skill']:.3f} [{r['brier_skill_low']:.3f}, "
               f"{r['brier_skill_high']:.3f}]")
-    quiet = result.scores[(result.scores["source"] == "model") & (result.scores["events"] == 0)]
-    for _, r in quiet.iterrows():
-        print(f"  season {r['season']}: no exceedance of {r['level']}")
+    from cyanorisk.report.backtest_page import season_sentences
+
+    for title, sentences in season_sentences(result, pipeline.spec.levels):
+        print(f"  {title}:")
+        for sentence in sentences:
+            print(f"    {sentence}")
     for note in result.notes:
         print(f"  note: {note}")
     for p in paths:
@@ -148,10 +168,33 @@ def _backtest(pipeline: SitePipeline, seasons: str | None) -> None:
 
 
 def cmd_tune(args: argparse.Namespace) -> int:
-    """Tune each level's warning threshold on a backtest; write the thresholds file."""
+    """Tune each level's warning threshold on a backtest and write a proposal; with
+    ``--accept``, put the proposal in force."""
+    if args.accept:
+        if args.miss_cost is not None or args.target_hit_rate is not None:
+            raise OptionError("--accept", "accepts the proposal already written; give it alone, "
+                                          "without --miss-cost or --target-hit-rate")
+        from cyanorisk.service.jobs import utc_clock
+
+        when = utc_clock()  # the clock is read here, at the edge
+        return each_site(_config(args), lambda p: _accept(p, when))
     if (args.miss_cost is None) == (args.target_hit_rate is None):
         raise ConfigError(args.config, None, "give either --miss-cost or --target-hit-rate")
+    if args.miss_cost is not None and not args.miss_cost > 0:
+        raise OptionError("--miss-cost", f"{args.miss_cost:g} is not a cost: give how many false "
+                                         "alarms one missed exceedance is worth, a number above 0")
+    if args.target_hit_rate is not None and not 0 < args.target_hit_rate <= 1:
+        raise OptionError("--target-hit-rate", f"{args.target_hit_rate:g} is not a hit rate: give "
+                                               "a share above 0 and at most 1, e.g. 0.9")
     return each_site(_config(args), lambda p: _tune(p, args))
+
+
+def _accept(pipeline: SitePipeline, when: str) -> None:
+    path, thresholds = pipeline.accept_tuning(when)
+    print(f"{pipeline.spec.name} ({pipeline.spec.site_id}): thresholds accepted and in force "
+          "from the next report: " + ", ".join(f"{n} {v:.2f}" for n, v in
+                                               thresholds.warn_at.items()))
+    print(f"  wrote {path}")
 
 
 def _tune(pipeline: SitePipeline, args: argparse.Namespace) -> None:
@@ -162,19 +205,21 @@ def _tune(pipeline: SitePipeline, args: argparse.Namespace) -> None:
           f"{run.span}")
     for c in choices:
         print(f"  {c.level}: {c.rule}")
-        cols = ["threshold", "hits", "misses", "false_alarms", "correct_negatives", "hit_rate",
-                "false_alarm_ratio", "mean_lead_time_days"]
+        cols = ["threshold", "hits", "misses", "false_alarms", "event_hits", "event_misses",
+                "hit_rate", "false_alarm_ratio", "mean_lead_time_days"]
         rows = c.table[c.table["threshold"].isin([0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9,
                                                   c.threshold])]
         print("    " + rows[cols].to_string(index=False, float_format=lambda v: f"{v:.2f}")
               .replace("\n", "\n    "))
-        lo, hi = c.spread()
-        print(f"    chosen: warn at {c.threshold:.2f} (bootstrap over seasons: {lo:.2f} to {hi:.2f})")
+        print(f"    proposed: warn at {c.threshold:.2f}; {c.verdict()}")
     for problem in problems:
         print(f"  {problem}")
     if choices:
         for p in pipeline.write_tuning(choices, run.span):
             print(f"  wrote {p}")
+        config_hint = f" --config {args.config}" if args.config else ""
+        print(f"  the proposal is not in force: review it, then `cyanorisk tune{config_hint} "
+              "--accept`")
 
 
 def cmd_serve(args: argparse.Namespace) -> int:
@@ -217,7 +262,9 @@ def cmd_status(args: argparse.Namespace) -> int:
 
 
 def cmd_run(args: argparse.Namespace) -> int:
-    """Run the daily job once for a date (as the scheduler would), recording it in the store."""
+    """Run the daily job once for a date (as the scheduler would), recording it in the store.
+    Exit status 1 when a site failed, 3 when a site's data were insufficient for an outlook."""
+    from cyanorisk.forecast import STATUS_INSUFFICIENT
     from cyanorisk.service.jobs import run_daily, utc_clock
 
     config = _config(args)
@@ -232,7 +279,8 @@ def cmd_run(args: argparse.Namespace) -> int:
               f"{o.level or o.status}); {o.reason}")
         if o.notification:
             print(f"  notification: {o.notification}")
-    return 0 if result.status == "ok" else EXIT_DATA
+    return worst([EXIT_DATA if o.action == "failed" else
+                  EXIT_INSUFFICIENT if o.status == STATUS_INSUFFICIENT else 0 for o in result.sites])
 
 
 def cmd_check(args: argparse.Namespace) -> int:
@@ -266,7 +314,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
         print("\n".join(_label_balance_lines(pipeline, table)))
         models, path = pipeline.train(table)
         print(model_card_text(models.card, str(path)))
-        _report(pipeline, None)
+        return _report(pipeline, None, config.store_url)
 
     return each_site(_config(args), work)
 
@@ -313,6 +361,7 @@ def build_parser() -> argparse.ArgumentParser:
                                                          "the first)")
     p.add_argument("--miss-cost", type=float, help="cost of a missed exceedance in false alarms")
     p.add_argument("--target-hit-rate", type=float, help="smallest acceptable hit rate, e.g. 0.9")
+    p.add_argument("--accept", action="store_true", help="put the thresholds proposal in force")
     p = command("serve", cmd_serve, "run the daily reports on schedule until stopped")
     p.add_argument("--no-catch-up", action="store_true", help="do not run the days missed while "
                                                               "the service was down")

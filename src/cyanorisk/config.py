@@ -142,6 +142,9 @@ class Site:
     """A scheme defined under [schemes] in the configuration, when ``scheme`` names one."""
     ingest: IngestSettings = field(default_factory=IngestSettings)
     """The installation's cleaning policies."""
+    warn_at: dict[str, float] | None = None
+    """Warning thresholds by level set in the configuration (``[sites.alerts] warn_at``); they
+    override tuned thresholds."""
     spec: SiteSpec | None = None
     """What the core computes with, built once from the settings above."""
 
@@ -519,7 +522,7 @@ class _Reader:
         drivers = self.record(self.get(table, "drivers", dict, where, {}), FeatureSettings,
                               f"{where}.drivers")
         alerts = self.get(table, "alerts", dict, where, {})
-        self.keys(alerts, {"scheme", "measures"}, f"{where}.alerts")
+        self.keys(alerts, {"scheme", "measures", "warn_at"}, f"{where}.alerts")
         scheme = self.choice(alerts, "scheme", tuple(SCHEMES) + tuple(self.schemes),
                              f"{where}.alerts", "who1999_drinking")
         custom = self.schemes.get(scheme)
@@ -530,6 +533,20 @@ class _Reader:
                 (custom or preset_scheme(scheme)).using(measures)
             except ValueError as exc:
                 raise self.fail(f"{where}.alerts.measures", str(exc)) from None
+        warn_at = None
+        if "warn_at" in alerts:
+            key = f"{where}.alerts.warn_at"
+            given = self.get(alerts, "warn_at", dict, f"{where}.alerts")
+            names = (custom or preset_scheme(scheme)).using(measures).names
+            warn_at = {}
+            for level, value in given.items():
+                if level not in names:
+                    raise self.fail(key, f"{level!r} is not a level of the scheme; levels: "
+                                         f"{', '.join(names)}")
+                warn_at[level] = self.typed(value, float, f"{key}.{level}")
+                if not 0 < warn_at[level] < 1:
+                    raise self.fail(f"{key}.{level}", "a warning threshold is a probability "
+                                                      "between 0 and 1 (e.g. 0.3)")
         model = self.record(self.get(table, "model", dict, where, {}), ModelSettings,
                             f"{where}.model")
         for name in model.drivers or ():
@@ -543,9 +560,12 @@ class _Reader:
             weather=WeatherSource(tuple(patterns), tuple(files), dialect, period, dialects[dialect]),
             samples=samples, drivers=drivers, scheme=scheme, measures=measures, custom_scheme=custom,
             model=model, authority=self.get(table, "authority", str, where, DEFAULT_AUTHORITY),
-            ingest=self.ingest)
+            ingest=self.ingest, warn_at=warn_at)
         try:
-            return dataclasses.replace(site, spec=site.build_spec())
+            return dataclasses.replace(site, spec=dataclasses.replace(
+                site.build_spec(), warn_at=warn_at,
+                warn_at_source=f"set in the configuration ({self.label}, key "
+                               f"{where}.alerts.warn_at)" if warn_at else ""))
         except ValueError as exc:
             raise self.fail(f"{where}.model", str(exc)) from None
 

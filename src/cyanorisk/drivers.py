@@ -147,11 +147,11 @@ GLOSSARY: tuple[Driver, ...] = (
            Effect.NONE, "how far the last count can be trusted: common practice, no source",
            defaults=((None, None),), kind="lab"),
     Driver("season_sin", None, Reducer.NONE, "-", "time of year (sine term)", Effect.NONE,
-           "the annual cycle: common practice, no source", defaults=((None, None),),
-           kind="calendar"),
+           "the annual cycle: common practice, no source; not a default, the weather carries "
+           "the season", kind="calendar"),
     Driver("season_cos", None, Reducer.NONE, "-", "time of year (cosine term)", Effect.NONE,
-           "the annual cycle: common practice, no source", defaults=((None, None),),
-           kind="calendar"),
+           "the annual cycle: common practice, no source; not a default, the weather carries "
+           "the season", kind="calendar"),
 )
 """The driver families, weather first."""
 

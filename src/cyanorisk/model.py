@@ -33,7 +33,7 @@ from __future__ import annotations
 import hashlib
 import json
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
@@ -275,6 +275,8 @@ class RiskModel:
             raise ValueError(f"X has {len(X)} rows but y has {len(y)}")
         labelled = ~np.isnan(y)
         self.n_unlabelled_ = int((~labelled).sum())
+        self.left_out_: list[dict[str, Any]] = []
+        """Drivers left out of the fit, with the reason (see training.fit_signed)."""
         Xl = X.loc[labelled, drivers].astype(float)
         yl = y[labelled].astype(int)
         present = np.unique(yl)
@@ -390,7 +392,8 @@ class RiskModel:
                 "median": s.median.tolist(), "mean": s.mean.tolist(), "scale": s.scale.tolist(),
                 "indicators": s.indicators, "loglike": self.loglike_, "n_train": self.n_train_,
                 "n_unlabelled": self.n_unlabelled_,
-                "class_counts": {str(k): v for k, v in self.class_counts_.items()}}
+                "class_counts": {str(k): v for k, v in self.class_counts_.items()},
+                "left_out": list(self.left_out_)}
 
     @classmethod
     def from_dict(cls, d: dict[str, Any]) -> RiskModel:
@@ -403,6 +406,7 @@ class RiskModel:
         m.loglike_, m.n_train_ = float(d["loglike"]), int(d["n_train"])
         m.n_unlabelled_ = int(d["n_unlabelled"])
         m.class_counts_ = {int(k): int(v) for k, v in d["class_counts"].items()}
+        m.left_out_ = list(d["left_out"])
         return m
 
 
@@ -544,17 +548,23 @@ class SiteModels:
     climatology: ClimatologyModel
     card: dict[str, Any]
     """What ``cyanorisk train`` prints: training window, counts, coefficients, skill."""
+    normals: dict[str, list[float | None]] = field(default_factory=dict)
+    """The usual value of each driver per dekad of the year (36 values; see
+    :func:`cyanorisk.training.driver_normals`)."""
 
     def to_dict(self) -> dict[str, Any]:
         """The JSON-ready body of the model file."""
         return {"site_id": self.site_id, "card": self.card, "risk": self.risk.to_dict(),
-                "count": self.count.to_dict(), "climatology": self.climatology.to_dict()}
+                "count": self.count.to_dict(), "climatology": self.climatology.to_dict(),
+                "normals": self.normals}
 
     @classmethod
     def from_dict(cls, body: dict[str, Any]) -> SiteModels:
+        normals = {str(k): [None if v is None else float(v) for v in vs]
+                   for k, vs in body["normals"].items()}
         return cls(str(body["site_id"]), RiskModel.from_dict(body["risk"]),
                    CountModel.from_dict(body["count"]),
-                   ClimatologyModel.from_dict(body["climatology"]), dict(body["card"]))
+                   ClimatologyModel.from_dict(body["climatology"]), dict(body["card"]), normals)
 
 
 # ---------------------------------------------------------------------------------------------

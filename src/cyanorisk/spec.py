@@ -77,6 +77,9 @@ class SiteSpec:
     """A last known sample older than this [d] gives 'insufficient data'."""
     history_days: int = HISTORY_DAYS
     """Days of history a report shows."""
+    warn_at: Mapping[str, float] | None = None
+    """Warning thresholds set in the configuration, by level: they override tuned ones."""
+    warn_at_source: str = ""
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "drivers", tuple(canonical_driver(d) for d in self.drivers))

@@ -18,6 +18,7 @@ import pandas as pd
 
 from cyanorisk.align import level_slug
 from cyanorisk.align import training_table as align_training_table
+from cyanorisk.drivers import Effect, lookup
 from cyanorisk.features import FeatureBuilder
 from cyanorisk.ingest.samples import empty_totals
 from cyanorisk.model import (
@@ -68,16 +69,67 @@ def label_columns(spec: SiteSpec, horizon_days: int | None = None) -> list[str]:
     return [f"reach_{level_slug(n)}_{h}d" for n in spec.levels]
 
 
+def fit_signed(drivers: list[str], levels: list[str], horizon_days: int, X: pd.DataFrame,
+               y: np.ndarray) -> RiskModel:
+    """The risk model fitted with the directions of the driver glossary.
+
+    A driver whose fitted effect runs against the direction the literature gives it (warmth,
+    light and calm raise the risk, wind mixing and flushing lower it; :mod:`cyanorisk.drivers`)
+    is left out, not reversed, and the model is fitted again without it, until no driver is
+    against its direction. The most confidently reversed driver goes first, so that of two
+    overlapping drivers (water temperature and degree-days rise together) the one that carries
+    the signal stays. What was left out, and why, is kept in ``left_out_``.
+    """
+    drivers = list(drivers)
+    left_out: list[dict[str, Any]] = []
+    while True:
+        risk = RiskModel(drivers, levels, horizon_days).fit(X, y)
+        coef = dict(zip(risk.feature_names_in_, risk.coef_, strict=True))
+        se = dict(zip(risk.feature_names_in_, risk.coef_se_, strict=True))
+        wrong = [d for d in drivers if (info := lookup(d)) is not None and info.effect != Effect.NONE
+                 and np.sign(coef[d]) == -int(info.effect)]
+        if not wrong or len(drivers) == 1:
+            risk.left_out_ = left_out
+            return risk
+        worst = max(wrong, key=lambda d: abs(coef[d]) / (se[d] if se[d] > 0 else 1.0))
+        effect = "raise" if lookup(worst).effect == Effect.RAISES else "lower"
+        left_out.append({"driver": worst, "per_sd": float(coef[worst]),
+                         "reason": f"its fitted effect ran against the direction the literature "
+                                   f"gives it (it should {effect} the risk); left out, not "
+                                   "reversed"})
+        drivers.remove(worst)
+
+
 def fit_models(spec: SiteSpec, table: pd.DataFrame) -> tuple[RiskModel, CountModel, ClimatologyModel]:
     """Fit the risk, count and climatology models of a site on a training table."""
     h = spec.horizon_days
-    drivers = list(spec.drivers)
     X = prepare(table)
     y = ordinal_outcome(X, label_columns(spec))
-    risk = RiskModel(drivers, spec.levels, h).fit(X, y)
-    count = CountModel(drivers).fit(X, X[f"max_count_log10_{h}d"].to_numpy())
+    risk = fit_signed(list(spec.drivers), spec.levels, h, X, y)
+    count = CountModel(list(risk.drivers)).fit(X, X[f"max_count_log10_{h}d"].to_numpy())
     clim = ClimatologyModel(spec.levels).fit(X["issue_date"], y)
     return risk, count, clim
+
+
+def dekad(dates: pd.Series | pd.Index) -> np.ndarray:
+    """Index 0-35 of the ten-day period of the year (days 1-10, 11-20 and 21 to the end of each
+    month), the agrometeorological dekad (common practice, no source)."""
+    d = pd.DatetimeIndex(pd.to_datetime(dates))
+    return ((d.month - 1) * 3 + np.minimum((d.day - 1) // 10, 2)).to_numpy()
+
+
+def driver_normals(X: pd.DataFrame, drivers: list[str]) -> dict[str, list[float | None]]:
+    """The usual value of each driver for the time of year: its median per dekad over the
+    training table (the overall median where a dekad has none)."""
+    period = dekad(X["issue_date"])
+    out = {}
+    for d in drivers:
+        values = pd.Series(X[d].to_numpy(dtype=float))
+        by = values.groupby(period).median().reindex(range(36))
+        overall = values.median()
+        by = by.fillna(overall)
+        out[d] = [None if v != v else float(v) for v in by.to_numpy()]
+    return out
 
 
 def cross_validate(spec: SiteSpec, table: pd.DataFrame) -> pd.DataFrame:
@@ -155,4 +207,6 @@ def fit_site(spec: SiteSpec, table: pd.DataFrame, cross_validation: bool = True)
                                           "climatology": skill(cv, names, "climatology"),
                                           "seasons": int(cv["season"].nunique())}
                                          if len(cv) else None)
-    return SiteModels(spec.site_id, risk, count, clim, card)
+    card["left_out"] = list(risk.left_out_)
+    return SiteModels(spec.site_id, risk, count, clim, card,
+                      driver_normals(X, list(risk.drivers)))

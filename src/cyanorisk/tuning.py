@@ -17,7 +17,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from cyanorisk.verify import lead_time_days
+from cyanorisk.verify import event_counts, lead_time_days
 
 THRESHOLDS = np.round(np.arange(0.01, 1.0, 0.01), 2)
 """Probability thresholds swept: 0.01 to 0.99."""
@@ -52,7 +52,21 @@ def sweep(forecasts: pd.DataFrame, exceedances: pd.DataFrame,
                               "csi": a / (a + b + c)})
     if lead_times:
         table["mean_lead_time_days"] = [_mean_lead(forecasts, exceedances, t) for t in thresholds]
+        events = [_events(forecasts, t) for t in thresholds]
+        for key in ("event_hits", "event_misses", "false_alarm_spells"):
+            table[key] = [e[key] for e in events]
     return table
+
+
+def _events(forecasts: pd.DataFrame, threshold: float) -> dict[str, int]:
+    """Hits and misses in events, summed over the seasons (:func:`verify.event_counts`)."""
+    total = {"event_hits": 0, "event_misses": 0, "false_alarm_spells": 0}
+    for _, g in forecasts.groupby("season", sort=True):
+        counted = event_counts(g["issue_date"].to_numpy(), g["probability"].to_numpy() >= threshold,
+                               g["outcome"].to_numpy(dtype=float))
+        for key in total:
+            total[key] += counted[key]
+    return total
 
 
 def _mean_lead(forecasts: pd.DataFrame, exceedances: pd.DataFrame, threshold: float) -> float:
@@ -93,6 +107,11 @@ def choose_by_hit_rate(table: pd.DataFrame, target: float) -> float:
     return float(ok["threshold"].max())
 
 
+UNSTABLE_RANGE = 0.2
+"""A choice whose bootstrap 90% range is wider than this [probability] is called unstable
+(common practice, no source: a manager should not adopt it without a second look)."""
+
+
 @dataclass
 class Choice:
     """A tuned threshold of one level and how stable it is."""
@@ -103,11 +122,37 @@ class Choice:
     table: pd.DataFrame
     bootstrap: np.ndarray
     """Thresholds chosen on bootstrap resamples of whole seasons."""
+    miss_cost: float | None = None
+    target_hit_rate: float | None = None
 
     def spread(self) -> tuple[float, float]:
         """5th and 95th percentiles of the bootstrap choices."""
         b = self.bootstrap[~np.isnan(self.bootstrap)]
         return (float(np.percentile(b, 5)), float(np.percentile(b, 95))) if len(b) else (np.nan,) * 2
+
+    @property
+    def unstable(self) -> bool:
+        """True when resamples of the seasons choose widely different thresholds, or often
+        none."""
+        lo, hi = self.spread()
+        failed = float(np.isnan(self.bootstrap).mean()) if len(self.bootstrap) else 0.0
+        return bool(lo != lo or hi - lo > UNSTABLE_RANGE or failed > 0.1)
+
+    def verdict(self) -> str:
+        """One sentence on how far the choice can be trusted."""
+        lo, hi = self.spread()
+        if lo != lo:
+            return "too few seasons to say how stable this choice is"
+        if self.unstable:
+            return (f"unstable across seasons: resampling the seasons puts it anywhere from "
+                    f"{lo:.2f} to {hi:.2f}; adopt it only after a second look")
+        return f"stable across seasons (resampling them gives {lo:.2f} to {hi:.2f})"
+
+    def cost(self) -> pd.Series | None:
+        """Expected cost per threshold: miss_cost x misses + false alarms [false alarms]."""
+        if self.miss_cost is None:
+            return None
+        return self.miss_cost * self.table["misses"] + self.table["false_alarms"]
 
 
 def tune_level(forecasts: pd.DataFrame, exceedances: pd.DataFrame, level: str, *,
@@ -138,21 +183,33 @@ def tune_level(forecasts: pd.DataFrame, exceedances: pd.DataFrame, level: str, *
             boot.append(np.nan)
     rule = (f"miss cost {miss_cost:g} (a missed exceedance costs {miss_cost:g} false alarms)"
             if miss_cost is not None else f"target hit rate {_pct(target_hit_rate)}")
-    return Choice(level, chosen, rule, table, np.array(boot, dtype=float))
+    return Choice(level, chosen, rule, table, np.array(boot, dtype=float), miss_cost,
+                  target_hit_rate)
 
 
-def thresholds_toml(site_id: str, choices: list[Choice], seasons: str,
-                    kept: dict[str, float] | None = None) -> str:
-    """The tuned thresholds as a TOML file the daily report reads. ``kept``: thresholds of
-    levels not tuned this time, carried over from the earlier file."""
-    lines = [f"# Warning thresholds for site '{site_id}', written by `cyanorisk tune`.",
-             "# The daily report of this site applies them and names this file.",
+def proposal_toml(site_id: str, choices: list[Choice], seasons: str,
+                  kept: dict[str, float] | None = None) -> str:
+    """The tuned thresholds as a proposal: the daily report does not apply them until a manager
+    accepts them (``cyanorisk tune --accept``). ``kept``: thresholds of levels not tuned this
+    time, carried over from those in force."""
+    lines = [f"# Warning thresholds proposed for site '{site_id}' by `cyanorisk tune`.",
+             "# Not in force until accepted: `cyanorisk tune --config FILE --accept`.",
              f'site_id = "{site_id}"',
              f'rule = "{choices[0].rule}"' if choices else 'rule = ""',
              f'seasons = "{seasons}"', "", "[warn_at]"]
     for c in choices:
         lo, hi = c.spread()
-        lines.append(f'"{c.level}" = {c.threshold:.2f}    # bootstrap 90% range {lo:.2f} to {hi:.2f}')
+        lines.append(f'"{c.level}" = {c.threshold:.2f}    # bootstrap 90% range {lo:.2f} to {hi:.2f}'
+                     + ("; unstable" if c.unstable else ""))
     for level, value in (kept or {}).items():
-        lines.append(f'"{level}" = {value:.2f}    # kept from the earlier file: not tuned this time')
+        lines.append(f'"{level}" = {value:.2f}    # kept from those in force: not tuned this time')
     return "\n".join(lines) + "\n"
+
+
+def accepted_toml(proposal: str, accepted_at: str) -> str:
+    """A proposal as accepted: the same thresholds, with when they were accepted."""
+    body = [line for line in proposal.splitlines() if not line.startswith("#")]
+    head = ["# Warning thresholds in force for this site: tuned by `cyanorisk tune`, accepted",
+            "# by `cyanorisk tune --accept`. The daily report applies them and names this file.",
+            f'accepted_at = "{accepted_at}"']
+    return "\n".join(head + body) + "\n"

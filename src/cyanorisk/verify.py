@@ -155,3 +155,34 @@ def lead_time_days(dates: np.ndarray, warned: np.ndarray, exceed_dates: np.ndarr
         return float((first - dates[k]) / day)
     after = warned & (dates > first)
     return float(-((dates[after].min() - first) / day)) if after.any() else float("nan")
+
+
+def _runs(mask: np.ndarray, dates: np.ndarray) -> list[np.ndarray]:
+    """Index arrays of the runs of consecutive days where ``mask`` holds (a missing day ends a
+    run)."""
+    idx = np.flatnonzero(mask)
+    if not len(idx):
+        return []
+    day = np.timedelta64(1, "D")
+    breaks = np.flatnonzero(np.diff(dates[idx]) != day) + 1
+    return np.split(idx, breaks)
+
+
+def event_counts(dates: np.ndarray, warned: np.ndarray, outcome: np.ndarray) -> dict[str, int]:
+    """Hits and misses counted in events, not days, for one season and level.
+
+    An event is a run of consecutive issue days whose outcome is 1 (a sample in the window met
+    the level); it is warned when a warning was issued on any of its days, else missed. A
+    false-alarm spell is a run of consecutive warning days none of which had an exceedance and
+    at least one of which was decided without one. Common practice in warning verification
+    (counting episodes rather than days), no source.
+    """
+    dates = np.asarray(dates, dtype="datetime64[D]")
+    warned = np.asarray(warned, dtype=bool)
+    o = np.asarray(outcome, dtype=float)
+    events = _runs(o == 1, dates)
+    hits = sum(bool(warned[run].any()) for run in events)
+    spells = _runs(warned, dates)
+    false = sum(bool(not (o[run] == 1).any() and (o[run] == 0).any()) for run in spells)
+    return {"events": len(events), "event_hits": hits, "event_misses": len(events) - hits,
+            "false_alarm_spells": false}

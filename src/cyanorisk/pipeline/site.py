@@ -16,18 +16,21 @@ from collections.abc import Callable, Iterable
 from dataclasses import dataclass
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 
 from cyanorisk.atomic import write_group
 from cyanorisk.backtest import BacktestResult, parse_seasons, walk_forward
 from cyanorisk.config import Config, Site
-from cyanorisk.forecast import Assessment, assess, default_as_of
+from cyanorisk.errors import ModelFileError
+from cyanorisk.features import issue_instants
+from cyanorisk.forecast import Assessment, InForce, assess, default_as_of, known_samples, lab_level
 from cyanorisk.model import SiteModels
 from cyanorisk.pipeline.clean import CleanData, clean_site, file_digest
-from cyanorisk.pipeline.workspace import SiteWorkspace
+from cyanorisk.pipeline.workspace import SiteWorkspace, read_thresholds
 from cyanorisk.spec import SiteSpec, Thresholds
 from cyanorisk.training import fit_site, season_of, training_table
-from cyanorisk.tuning import Choice, thresholds_toml, tune_level
+from cyanorisk.tuning import Choice, accepted_toml, proposal_toml, tune_level
 
 Progress = Callable[[Iterable, int, str], Iterable]
 
@@ -157,9 +160,15 @@ class SitePipeline:
         return self.workspace.load_models(self.config_path)
 
     def thresholds(self) -> Thresholds:
-        """The warning thresholds in force for the site (read once per pipeline)."""
+        """The warning thresholds in force for the site (read once per pipeline): those set in
+        the configuration, else the accepted tuned ones, else the default."""
         if self._thresholds is None:
-            self._thresholds = self.workspace.load_thresholds(self.spec.levels)
+            spec = self.spec
+            if spec.warn_at:
+                self._thresholds = Thresholds({**Thresholds.default(spec.levels).warn_at,
+                                               **spec.warn_at}, spec.warn_at_source)
+            else:
+                self._thresholds = self.workspace.load_thresholds(spec.levels)
         return self._thresholds
 
     # 4. assess and report ----------------------------------------------------------------------
@@ -173,6 +182,18 @@ class SitePipeline:
         day = (pd.Timestamp(as_of) if as_of is not None
                else default_as_of(clean.weather, self.spec.timezone))
         return assess(self.spec, models, clean.weather, clean.totals, day, thresholds, clean.rows)
+
+    def lab_level_or_none(self, as_of: pd.Timestamp | str) -> InForce | None:
+        """The level in force from the lab on a day, when the clean data can be read (for the
+        'no assessment today' report); None when they cannot."""
+        try:
+            clean = self.clean()
+            day = pd.Timestamp(as_of).normalize()
+            issue = issue_instants(pd.DatetimeIndex([day]), self.spec.timezone,
+                                   self.spec.issue_time)[0]
+            return lab_level(known_samples(clean.totals, issue, self.spec), self.spec)
+        except Exception:  # the data are what failed: the report says the level is not known
+            return None
 
     def write_report(self, assessment: Assessment) -> list[Path]:
         """Write the HTML, JSON and text renderings atomically, as a group."""
@@ -205,8 +226,8 @@ class SitePipeline:
         from cyanorisk.report.backtest_page import render_backtest
 
         spec = self.spec
-        cells = [t.value for lvl in spec.scheme.levels for t in lvl.thresholds
-                 if t.measure == "cyano_cells_per_ml"]
+        cells = [(lvl.name, t.value) for lvl in spec.scheme.levels for t in lvl.thresholds
+                 if t.measure == "cyano_cells_per_ml" and not t.detection]
         folder = self.workspace.backtest_folder(run.span)
         result = run.result
         page = render_backtest(spec.name, result, _season_counts(spec, run.totals), spec.levels,
@@ -235,23 +256,41 @@ class SitePipeline:
         return choices, problems
 
     def write_tuning(self, choices: list[Choice], span: str) -> list[Path]:
-        """The thresholds file (read by the daily report) and the trade-off plot."""
+        """The thresholds proposal (not in force until accepted) and the trade-off plot."""
         from cyanorisk.report.backtest_page import tradeoff_plot
         from cyanorisk.report.figures import new_figure, png_bytes
 
-        fig, ax = new_figure(7, 3.5)
-        tradeoff_plot(choices, ax=ax)
+        fig, axes = new_figure(8, 3.2 * len(choices) + 0.4, max(len(choices), 1), 1)
+        tradeoff_plot(choices, np.ravel(axes))
         tuned = {c.level for c in choices}
-        earlier = self.thresholds()
+        earlier = self.workspace.load_thresholds(self.spec.levels)
         kept = ({level: v for level, v in earlier.warn_at.items() if level not in tuned}
                 if earlier.tuned else {})  # levels not tuned now keep their threshold
-        text = thresholds_toml(self.spec.site_id, choices, span, kept)
+        text = proposal_toml(self.spec.site_id, choices, span, kept)
         image = png_bytes(fig)
         return write_group({
-            self.workspace.thresholds_file: lambda tmp: tmp.write_text(text, encoding="utf-8"),
+            self.workspace.proposal_file: lambda tmp: tmp.write_text(text, encoding="utf-8"),
             self.workspace.tuning_plot(span): lambda tmp: tmp.write_bytes(image),
         })
 
+    def accept_tuning(self, accepted_at: str) -> tuple[Path, Thresholds]:
+        """Put the proposed thresholds in force; the time of acceptance is kept with them.
+
+        Raises
+        ------
+        ModelFileError
+            When there is no proposal, or it is not one the site's scheme can use.
+        """
+        proposal = self.workspace.proposal_file
+        if not proposal.exists():
+            raise ModelFileError(f"{proposal}: no thresholds proposal for site "
+                                 f"'{self.spec.site_id}'; run `cyanorisk tune` first")
+        read_thresholds(proposal, self.spec.levels)  # a proposal the scheme cannot use stops here
+        text = accepted_toml(proposal.read_text(encoding="utf-8"), accepted_at)
+        target = self.workspace.thresholds_file
+        write_group({target: lambda tmp: tmp.write_text(text, encoding="utf-8")})
+        self._thresholds = None
+        return target, self.workspace.load_thresholds(self.spec.levels)
 
 def _season_counts(spec: SiteSpec, totals: pd.DataFrame) -> pd.DataFrame:
     """Per-sample counts with their local date and season, for the timelines."""

@@ -103,7 +103,13 @@ class SiteWorkspace:
 
     @property
     def thresholds_file(self) -> Path:
+        """The warning thresholds in force (accepted by a manager)."""
         return self.models_dir / f"{self.site_id}.thresholds.toml"
+
+    @property
+    def proposal_file(self) -> Path:
+        """Thresholds proposed by ``cyanorisk tune``, not in force until accepted."""
+        return self.models_dir / f"{self.site_id}.thresholds.proposed.toml"
 
     def load_models(self, config_hint: str = "") -> SiteModels:
         """The site's saved models.
@@ -133,8 +139,9 @@ class SiteWorkspace:
         return self.model_file, bundle_text(models)
 
     def load_thresholds(self, levels: list[str]) -> Thresholds:
-        """Warning thresholds of the site: the tuned ones when a thresholds file exists (levels
-        it does not name keep the default), else the default for every level.
+        """Warning thresholds of the site: the accepted tuned ones when a thresholds file exists
+        (levels it does not name keep the default), else the default for every level. A
+        proposal not yet accepted is not applied.
 
         Raises
         ------
@@ -142,23 +149,10 @@ class SiteWorkspace:
             When the thresholds file cannot be read or names levels the site's scheme lacks.
         """
         path = self.thresholds_file
-        default = Thresholds.default(levels)
         if not path.exists():
-            return default
-        try:
-            data = tomllib.loads(path.read_text(encoding="utf-8"))
-            tuned = {str(k): float(v) for k, v in data["warn_at"].items()}
-        except (OSError, UnicodeDecodeError, tomllib.TOMLDecodeError, KeyError, TypeError,
-                AttributeError, ValueError) as exc:
-            raise ModelFileError(f"{path}: not a readable thresholds file ({exc})") from None
-        unknown = set(tuned) - set(levels)
-        if unknown or not all(0 < v < 1 for v in tuned.values()):
-            raise ModelFileError(f"{path}: levels {', '.join(sorted(unknown)) or '(none)'} are not "
-                                 f"in the scheme ({', '.join(levels)}), or a threshold is outside "
-                                 "(0, 1)")
-        return Thresholds({**default.warn_at, **tuned},
-                          f"tuned on the backtest of seasons {data.get('seasons', '?')} by "
-                          f"{data.get('rule', '?')} ({path})", tuned=True)
+            return Thresholds.default(levels)
+        return read_thresholds(path, levels)
+
 
     # reports -----------------------------------------------------------------------------------
 
@@ -178,3 +172,31 @@ class SiteWorkspace:
 
     def notice_file(self, name: str) -> Path:
         return self.outbox_dir / name
+
+
+def read_thresholds(path: Path, levels: list[str]) -> Thresholds:
+    """A thresholds file (in force or proposed), checked against the scheme's levels.
+
+    Raises
+    ------
+    ModelFileError
+        When the file cannot be read or names levels the scheme lacks.
+    """
+    default = Thresholds.default(levels)
+    try:
+        data = tomllib.loads(path.read_text(encoding="utf-8"))
+        tuned = {str(k): float(v) for k, v in data["warn_at"].items()}
+    except (OSError, UnicodeDecodeError, tomllib.TOMLDecodeError, KeyError, TypeError,
+            AttributeError, ValueError) as exc:
+        raise ModelFileError(f"{path}: not a readable thresholds file ({exc})") from None
+    unknown = set(tuned) - set(levels)
+    if unknown or not all(0 < v < 1 for v in tuned.values()):
+        raise ModelFileError(f"{path}: levels {', '.join(sorted(unknown)) or '(none)'} are not "
+                             f"in the scheme ({', '.join(levels)}), or a threshold is outside "
+                             "(0, 1)")
+    accepted = data.get("accepted_at")
+    when = (f"accepted {accepted}" if accepted else
+            "in force before proposals had to be accepted (cyanorisk 0.1)")
+    return Thresholds({**default.warn_at, **tuned},
+                      f"tuned on the backtest of seasons {data.get('seasons', '?')} by "
+                      f"{data.get('rule', '?')}, {when} ({path})", tuned=True)

@@ -1,7 +1,11 @@
 """The daily report of a site, rendered three ways: a self-contained HTML page (plots inline, no
-network resources, readable when printed), the JSON document (``report.schema.json``) and a
-plain-text summary for e-mail. Rendering only: the numbers come from
-:func:`cyanorisk.forecast.assess`.
+network resources, readable on a phone and on A4), the JSON document (``report.schema.json``)
+and a plain-text summary for e-mail. Rendering only: the numbers and the words come from the
+assessment (:mod:`cyanorisk.forecast`) through its document (:mod:`cyanorisk.report.document`).
+
+The page opens with a summary strip that is the first printed page: the level stated as a badge
+(name, shape and colour), its basis (the lab's level in force, or the outlook), the outlook,
+toxins, the next sample, what changed since the last report, what to do and who decides.
 """
 
 from __future__ import annotations
@@ -10,182 +14,274 @@ import html
 import json
 from typing import Any
 
-from cyanorisk.drivers import driver_label
+import pandas as pd
+
 from cyanorisk.forecast import HISTORY_DRIVERS, STATUS_ASSESSED, STATUS_NONE, Assessment
+from cyanorisk.levels import MEASURE_UNITS, MEASURE_WORDS
 from cyanorisk.report.document import report_document
 from cyanorisk.report.figures import data_uri, new_figure
 from cyanorisk.report.plots import counts_plot, drivers_plot, probability_plot
+from cyanorisk.report.style import CSS, INSUFFICIENT_COLOUR, badge, level_colour, level_colours
+from cyanorisk.words import cells, date, duration, number, percent
 
-CSS = """
-body { font-family: system-ui, -apple-system, 'Segoe UI', sans-serif; margin: 1.5em auto;
-       max-width: 60em; color: #1a1a1a; line-height: 1.4; }
-h1 { font-size: 1.4em; margin-bottom: 0.1em; } h2 { font-size: 1.1em; margin-top: 1.4em;
-     border-bottom: 1px solid #ccc; }
-.sub { color: #555; margin-top: 0; }
-.headline { padding: 0.8em 1em; border: 2px solid #333; border-radius: 6px; font-size: 1.15em; }
-.headline.level-0 { border-color: #2e7d32; } .headline.level-1 { border-color: #b8860b; }
-.headline.level-2, .headline.level-3 { border-color: #8b0000; }
-.headline.insufficient { border-color: #555; background: #f2f2f2; }
-table { border-collapse: collapse; margin: 0.4em 0; } td, th { padding: 0.2em 0.8em;
-        border-bottom: 1px solid #ddd; text-align: left; } th { background: #f4f4f4; }
-.deferral { font-weight: 600; padding: 0.6em 1em; border-left: 4px solid #333; background: #fafafa; }
-img { max-width: 100%; } .small { font-size: 0.85em; color: #444; }
-@media print { body { margin: 0; max-width: none; } .headline { break-inside: avoid; }
-               img { break-inside: avoid; } }
-"""
+e = html.escape
 
 
-def _fmt_cells(v: float | None, censor: str | None = None) -> str:
-    if v is None:
-        return "none"
-    prefix = censor if censor in ("<", ">") else ""
-    return f"{prefix}{v:,.0f} cells/mL"
-
-
-MEASURE_UNITS = {"cyano_cells_per_ml": "cyanobacteria cells/mL",
-                 "toxic_cells_per_ml": "toxin-producer cells/mL",
-                 "biovolume_mm3_per_l": "mm3/L biovolume", "chl_a_ug_per_l": "ug/L chlorophyll-a",
-                 "microcystin_ug_per_l": "ug/L microcystins"}
-
-
-def _strength(log_odds: float) -> str:
-    """A word for the size of a driver's push (log-odds in brackets for the record)."""
-    size = abs(log_odds)
-    word = "strong" if size >= 2 else "moderate" if size >= 0.7 else "slight"
-    return f"{word} ({log_odds:+.2f})"
+def _threshold_text(t: dict[str, Any]) -> str:
+    unit = MEASURE_UNITS.get(t["measure"], "")
+    words = MEASURE_WORDS.get(t["measure"], t["measure"])
+    if t["value"] == 0 and not t["inclusive"]:
+        return f"{words} detected"
+    return f"{words} {'&ge;' if t['inclusive'] else '&gt;'} {t['value']:,g} {e(unit)}"
 
 
 def figures(a: Assessment, c: dict[str, Any]) -> dict[str, str]:
-    """The report's plots as PNG data URIs."""
-    names = c["scheme"]["levels"]
-    lines = []
-    for name, thresholds in zip(names, c["scheme"]["thresholds"], strict=True):
-        cells = [t["value"] for t in thresholds if t["measure"] == "cyano_cells_per_ml"]
-        if cells:
-            lines.append((name, cells[0]))
+    """The report's plots as PNG data URIs, over one date range."""
+    spec = a.spec
+    scheme = spec.scheme
+    measure = scheme.primary_measure()
+    colours = level_colours(len(scheme.levels), scheme.levels)
+    lines = [(lvl.name, t.value, colour) for lvl, colour in zip(scheme.levels, colours, strict=True)
+             for t in lvl.thresholds if t.measure == measure and not t.detection]
+    first = a.as_of - pd.Timedelta(days=spec.history_days - 1)
+    xlim = (first, a.as_of + pd.Timedelta(days=1))
     out = {}
     fig, ax = new_figure(8, 3)
-    counts_plot(a.counts, lines, c["site"]["timezone"], ax=ax)
+    counts_plot(a.counts, measure, lines, spec.timezone, xlim, ax=ax)
     out["counts"] = data_uri(fig)
-    fig, ax = new_figure(8, 2.5)
-    probability_plot(a.history, names, c["forecast"]["warn_at"], ax=ax)
-    out["probability"] = data_uri(fig)
+    if c["forecast"]["probabilities"] is not None:
+        fig, ax = new_figure(8, 2.6)
+        probability_plot(a.history, scheme.names, c["forecast"]["warn_at"], xlim, colours, ax=ax)
+        out["probability"] = data_uri(fig)
     fig, axes = new_figure(8, 6, len(HISTORY_DRIVERS), 1, sharex=True)
-    drivers_plot(a.history, list(HISTORY_DRIVERS), axes)
+    drivers_plot(a.history, list(HISTORY_DRIVERS), xlim, axes)
     fig.suptitle("Weather drivers at each issue time", fontsize=9)
     out["drivers"] = data_uri(fig)
     return out
 
 
-def _render_no_assessment(c: dict[str, Any]) -> str:
-    e = html.escape
-    cautions = "".join(f"<li>{e(x)}</li>" for x in c["cautions"])
-    return f"""<!DOCTYPE html>
-<html lang="en"><head><meta charset="utf-8">
-<title>{e(c['site']['name'])}: no assessment {e(c['as_of'])}</title><style>{CSS}</style></head>
-<body><h1>{e(c['site']['name'])}: cyanobacterial bloom risk</h1>
-<p class="sub">For {e(c['as_of'])} at {e(c['issue_time_local'])}.</p>
-<section id="headline"><div class="headline insufficient">{e(c['headline'])}</div></section>
-<section id="cautions"><h2>Health cautions</h2><ul>{cautions}</ul></section>
-<section id="deferral"><p class="deferral">{e(c['deferral'])}</p></section>
-</body></html>
-"""
+def _basis_text(c: dict[str, Any]) -> str:
+    lab = c["in_force"]
+    if c["level_basis"] == "outlook":
+        return (f"raised by the outlook; the lab's level in force is {lab['level'] or 'not known'}")
+    if lab["level"] is None:
+        return "no lab result is known"
+    return f"the level in force from the lab since the sample of {lab['set_by_sampled_at'][:10]}"
+
+
+def _last_result(c: dict[str, Any]) -> str:
+    o = c["observed"]
+    if not o["last_sampled_at"]:
+        return "no lab result is known"
+    return (f"last result {cells(o['cyano_cells_per_ml'], o['censor'])} of cyanobacteria "
+            f"({o['level']}), sample of {o['last_sampled_at']}, {duration(o['age_days'])} old")
+
+
+def _outlook_line(c: dict[str, Any]) -> str:
+    f = c["forecast"]
+    if f["probabilities"] is None:
+        return ("Not given today: the data are insufficient (see the headline). No figure of the "
+                "model is shown.")
+    parts = [f"{n} {percent(p)}" for n, p in f["probabilities"].items()]
+    return f"Chance within {f['horizon_days']} days: " + ", ".join(parts)
+
+
+def _toxin_lines(c: dict[str, Any]) -> list[str]:
+    out = []
+    for t in c["toxins"]:
+        exceeded = [g for g in t["guideline_values"] if g["exceeded"]]
+        what = MEASURE_WORDS.get(t["measure"], t["measure"])
+        value = f"{'<' if t['censor'] == '<' else ''}{number(t['value_ug_per_l'], 'ug/L')}"
+        if exceeded:
+            g = exceeded[-1]
+            out.append(f"{what} {value} (sample of {t['sampled_at'][:10]}): ABOVE the {g['what']} "
+                       f"of {number(g['value_ug_per_l'], 'ug/L')}")
+        else:
+            lowest = t["guideline_values"][0]
+            out.append(f"{what} {value} (sample of {t['sampled_at'][:10]}): below the "
+                       f"{lowest['what']} of {number(lowest['value_ug_per_l'], 'ug/L')}")
+    return out
+
+
+def _sampling_line(c: dict[str, Any], source: bool = False) -> str:
+    s = c["sampling"]
+    if s is None or s["next_due"] is None:
+        return "no sample known: take one"
+    due = date(pd.Timestamp(s["next_due"]))
+    why = f": {s['source']}" if source else ""
+    text = f"due {due} (every {number(s['every_days'])} days at this level{why})"
+    return ("OVERDUE: " + text) if s["overdue"] else text
+
+
+def _summary(a: Assessment, c: dict[str, Any]) -> str:
+    scheme = a.spec.scheme
+    level = scheme.level(a.level_rank)
+    colour = level_colour(level) if a.level_rank is not None else INSUFFICIENT_COLOUR
+    name = c["level"] or "level not known"
+    note = {STATUS_ASSESSED: "", STATUS_NONE: "no assessment today"}.get(c["status"],
+                                                                        "no outlook: insufficient data")
+    facts = [("Level stated", f"{e(name)}: {e(_basis_text(c))}"),
+             ("Outlook", e(_outlook_line(c)))]
+    for line in _toxin_lines(c):
+        facts.append(("Toxins", e(line)))
+    if c["sampling"] is not None:
+        facts.append(("Next sample", e(_sampling_line(c))))
+    facts.append(("Since the last report", "<br>".join(e(x) for x in c["changes"]) or "n/a"))
+    facts.append(("What to do", "<br>".join(e(x) for x in c["actions"])))
+    facts.append(("Who decides", e(c["deferral"])))
+    rows = "".join(f"<dt>{k}</dt><dd>{v}</dd>" for k, v in facts)
+    return (f'<section id="summary" class="strip" style="border-color:{colour}">'
+            f'{badge(name, a.role, colour, note)}'
+            f'<p class="headline">{e(c["headline"])}</p><dl class="facts">{rows}</dl></section>')
+
+
+def _outlook_section(c: dict[str, Any]) -> str:
+    f = c["forecast"]
+    if f["probabilities"] is None:
+        return (f'<section id="outlook"><h2>Outlook</h2><p class="note">{e(_outlook_line(c))}</p>'
+                '</section>')
+    rows = "".join(
+        f"<tr><td>{e(n)}</td><td class='num'>{percent(p)}</td>"
+        f"<td class='num'>{percent(f['warn_at'][n])}</td>"
+        f"<td>{'yes' if p >= f['warn_at'][n] else 'no'}</td>"
+        f"<td class='num'>{percent(f['climatology'][n])}</td><td class='num'>"
+        + ("n/a" if f["persistence"][n] is None else percent(f["persistence"][n]))
+        + "</td></tr>" for n, p in f["probabilities"].items())
+    band = f["peak_band"]
+    high = "" if band["high"] is None else f" to {band['high']:,.0f}"
+    band_text = (f"Most likely peak count within {f['horizon_days']} days: {band['low']:,.0f}{high}"
+                 f"{'' if band['high'] is not None else ' and more'} "
+                 f"{MEASURE_UNITS.get(band['measure'], '')} ({band['level']}), "
+                 f"{percent(band['probability'])} by the probabilities above.")
+    lo, hi = f["interval_80_cells_per_ml"]
+    count = (f"The count model's median of the peak: {cells(f['expected_cells_per_ml'])} "
+             f"(80% interval {lo:,.0f} to {hi:,.0f}).")
+    note = f"<p class='note'>{e(f['count_note'])}</p>" if f["count_note"] else ""
+    watch = ("<p class='note'>The level was raised by this site's tuned warning threshold, below "
+             "50%: read it as a watch.</p>" if f["watch"] else "")
+    return f"""<section id="outlook"><h2>Outlook: chance of reaching each level within
+{f['horizon_days']} days</h2><div class="wide"><table>
+<tr><th>Level</th><th class="num">Chance</th><th class="num">Warn at</th><th>Warning</th>
+<th class="num">Usual for the time of year</th><th class="num">If the last result held</th></tr>
+{rows}</table></div>{watch}
+<p>{e(band_text)}</p><p class="small">{e(count)}</p>{note}
+<p class="small">Warning thresholds: {e(f['thresholds_source'])}.</p></section>"""
+
+
+def _guideline(g: dict[str, Any]) -> str:
+    memory = ", from memory" if g["status"] == "M" else ""
+    return (("<strong>above</strong> " if g["exceeded"] else "below ") + e(g["what"]) + " "
+            + number(g["value_ug_per_l"], "ug/L") + f" ({e(g['short'])}{memory})")
+
+
+def _lab_section(c: dict[str, Any]) -> str:
+    o, lab = c["observed"], c["in_force"]
+    if o["last_sampled_at"]:
+        last = (f"Last result known: sample of {e(o['last_sampled_at'])}, "
+                f"{e(cells(o['cyano_cells_per_ml'], o['censor']))} of cyanobacteria "
+                f"({e(o['level'])}), known since {e(o['known_since'])}, "
+                f"{e(duration(o['age_days']))} before this issue.")
+    else:
+        last = "No lab result is known."
+    force = (f"Level in force: {e(lab['level'])} since the sample of "
+             f"{e(lab['set_by_sampled_at'])}; it steps down after "
+             f"{lab['step_down_samples']} consecutive samples below it "
+             f"({lab['samples_below_since']} so far). Rule: {e(lab['step_down_rule'])}."
+             if lab["level"] is not None else "")
+    toxin_rows = "".join(
+        f"<tr><td>{e(MEASURE_WORDS.get(t['measure'], t['measure']))}</td>"
+        f"<td>{e(t['sampled_at'] or '')}</td><td class='num'>"
+        f"{'&lt;' if t['censor'] == '<' else ''}{number(t['value_ug_per_l'])}</td>"
+        f"<td>{'<br>'.join(_guideline(g) for g in t['guideline_values'])}</td></tr>"
+        for t in c["toxins"])
+    toxins = (f"<h3>Toxins</h3><div class='wide'><table><tr><th>Toxin</th><th>Sampled</th>"
+              f"<th class='num'>ug/L</th><th>Guideline values</th></tr>{toxin_rows}</table></div>"
+              if c["toxins"] else "")
+    levels = "".join(
+        f"<li>{e(n)}: " + ", ".join(_threshold_text(t) for t in ths) + "</li>"
+        for n, ths in zip(c["scheme"]["levels"], c["scheme"]["thresholds"], strict=True))
+    return f"""<section id="lab"><h2>Lab results</h2><p>{last}</p><p>{force}</p>
+<p>Next sample: {e(_sampling_line(c, source=True))}.</p>{toxins}
+<p class="small">Levels of the scheme ({e(c['scheme']['title'])}):</p><ul class="small">{levels}</ul>
+</section>"""
+
+
+def _drivers_section(c: dict[str, Any]) -> str:
+    f = c["forecast"]
+    if not f["drivers"]:
+        return ('<section id="drivers"><h2>What drives the outlook</h2><p>Not given: no outlook '
+                'today.</p></section>')
+    rows = "".join(
+        f"<tr><td>{e(d['label'])}</td><td class='num'>{e(number(d['value'], d['unit']))}</td>"
+        f"<td class='num'>{e(number(d['normal'], d['unit']))}</td>"
+        f"<td>{e((d['strength'] + ' ' if d['strength'] else '') + d['direction'])}</td></tr>"
+        for d in f["drivers"])
+    texts = "".join(f"<li>{e(d['text'])}</li>" for d in f["drivers"][:4])
+    missing = (f"<p class='small'>No value today (a typical one was used): "
+               f"{e(', '.join(f['missing_drivers']))}</p>" if f["missing_drivers"] else "")
+    left_out = c["model"].get("left_out") or []
+    dropped = ("<p class='small'>Left out of the model because their fitted effect ran against "
+               "the direction the literature gives them: "
+               + e(", ".join(d["driver"] for d in left_out)) + ".</p>" if left_out else "")
+    return f"""<section id="drivers"><h2>What drives the outlook</h2>
+<p class="small">Each driver today against its usual value for the time of year, and whether the
+difference raises or lowers the risk. Warmth, light, calm spells and a high count raise it; wind
+and heavy rain lower it (directions from the literature; each driver's source is in the driver
+glossary).</p><ul>{texts}</ul><div class="wide"><table>
+<tr><th>Driver</th><th class="num">Today</th><th class="num">Usual</th><th>Effect</th></tr>
+{rows}</table></div>{missing}{dropped}</section>"""
 
 
 def render_html(a: Assessment) -> str:
     """The self-contained HTML page."""
     c = report_document(a)
-    if c["status"] == STATUS_NONE:
-        return _render_no_assessment(c)
-    e = html.escape
-    f, o, fr = c["forecast"], c["observed"], c["freshness"]
-    assessed = c["status"] == STATUS_ASSESSED
-    klass = f"level-{f['level_rank']}" if assessed else "insufficient"
-    figs = figures(a, c)
-    rows = "".join(
-        f"<tr><td>{e(n)}</td><td>{f['probabilities'][n]:.0%}</td><td>{f['warn_at'][n]:.0%}</td>"
-        f"<td>{'yes' if f['probabilities'][n] >= f['warn_at'][n] else 'no'}</td>"
-        f"<td>{f['climatology'][n]:.0%}</td><td>"
-        + ("n/a" if f["persistence"][n] is None else f"{f['persistence'][n]:.0%}")
-        + "</td></tr>" for n in c["scheme"]["levels"])
-    drivers = "".join(
-        f"<tr><td>{e(driver_label(d['driver']))}</td><td>{d['value']:.3g}"
-        f"{' (missing: typical value used)' if d.get('imputed') else ''}</td><td>{e(d['direction'])} "
-        f"the risk</td><td>{_strength(d['log_odds'])}</td></tr>" for d in f["drivers"])
-    level_values = "".join(
-        f"<li>{e(n)}: " + ", ".join(f"{'&ge;' if t['inclusive'] else '&gt;'} {t['value']:,g} "
-                                      f"{e(MEASURE_UNITS.get(t['measure'], t['measure']))}"
-                                      for t in ths) + "</li>"
-        for n, ths in zip(c["scheme"]["levels"], c["scheme"]["thresholds"], strict=True))
+    fr, m = c["freshness"], c["model"]
+    figs = figures(a, c) if c["status"] != STATUS_NONE else {}
     quality = "".join(f"<li>{e(str(q))}</li>" for q in c["quality"].get("notes", [])) or \
         "<li>No data-quality notes.</li>"
-    cautions = "".join(f"<li>{e(x)}</li>" for x in c["cautions"])
-    observed = (f"Last sample {e(o['last_sampled_at'])}: {_fmt_cells(o['cyano_cells_per_ml'], o['censor'])}"
-                f" ({e(o['level'])}), known since {e(o['known_since'])}, {o['age_days']:.0f} days "
-                "before this issue" if o["last_sampled_at"] else "No lab result known yet.")
-    lo, hi = f["interval_80_cells_per_ml"]
-    missing = (f"<p class='small'>Missing drivers (imputed): {e(', '.join(f['missing_drivers']))}</p>"
-               if f["missing_drivers"] else "")
-    m = c["model"]
-    if assessed:
-        forecast_sections = f"""<section id="probabilities"><h2>Probability of reaching each level
-within {f['horizon_days']} days</h2>
-<table><tr><th>Level</th><th>Forecast</th><th>Warn at</th><th>Warning raised</th>
-<th>Climatology</th><th>Persistence</th></tr>{rows}</table>
-<p class="small">Climatology: how often the level was reached at this time of year in the
-record. Persistence: the last observed level stays. Warning thresholds: {e(f['thresholds_source'])}.
-Levels: </p><ul class="small">{level_values}</ul></section>
-
-<section id="expected-count"><h2>Expected count at {f['horizon_days']} days</h2>
-<p>{f['expected_cells_per_ml']:,.0f} cells/mL (80% interval {lo:,.0f} to {hi:,.0f}).</p></section>
-
-<section id="drivers"><h2>What drives this forecast</h2>
-<p class="small">Each driver's push on today's forecast compared with an average day of the
-training record: a driver below its usual value can lower the risk even when it favours blooms
-in general. Drivers overlap (warm water and degree-days rise together), so read them together.</p>
-<table><tr><th>Driver</th><th>Value today</th><th>Effect</th><th>Strength</th></tr>{drivers}</table>
-{missing}</section>"""
-    else:
-        forecast_sections = """<section id="probabilities"><h2>Forecast</h2>
-<p><strong>Not shown: the data are insufficient</strong> (see the headline). Probabilities,
-expected counts and drivers computed from stale or missing data would mislead.</p></section>
-<section id="expected-count"></section><section id="drivers"></section>"""
+    caution_items = "".join(f"<li>{e(x)}</li>" for x in c["cautions"])
+    plots = ""
+    if figs:
+        prob = (f'<img alt="Chance of reaching each level, day by day" src="{figs["probability"]}">'
+                if "probability" in figs else
+                '<p class="note">No outlook plot: the data are insufficient for an outlook.</p>')
+        plots = f"""<section id="plots"><h2>Plots of the last {a.spec.history_days} days</h2>
+<img alt="Lab counts on a log scale with the level thresholds" src="{figs['counts']}">
+{prob}
+<img alt="Weather drivers: water temperature, degree-days, wind run, calm hours, rain"
+ src="{figs['drivers']}"></section>"""
+    weather_age = ("n/a" if fr["weather_age_days"] is None
+                   else f"{duration(fr['weather_age_days'])} before the issue")
+    o = c["observed"]
+    sample_age = "n/a" if o["age_days"] is None else f"{duration(o['age_days'])} old"
+    trained = " to ".join(m["training_window"] or ["?", "?"])
     return f"""<!DOCTYPE html>
 <html lang="en"><head><meta charset="utf-8">
+<meta name="viewport" content="width=device-width, initial-scale=1">
 <title>{e(c['site']['name'])}: bloom risk {e(c['as_of'])}</title>
 <style>{CSS}</style></head><body>
-<h1>{e(c['site']['name'])}: cyanobacterial bloom risk</h1>
-<p class="sub">Issued for {e(c['as_of'])} at {e(c['issue_time_local'])}; intended use:
-{e(c['site']['use'])}; scheme: {e(c['scheme']['title'])} ({c['scheme']['year']}).</p>
-<section id="headline"><div class="headline {klass}">{e(c['headline'])}<br>
-<span class="small">Observed: {observed}</span></div></section>
-
+<header><h1>{e(c['site']['name'])}: cyanobacterial bloom risk</h1>
+<p class="sub">For {e(date(pd.Timestamp(c['as_of'])))}, issued {e(c['issue_time_local'])};
+intended use: {e(c['site']['use'])}; scheme: {e(c['scheme']['title'])} ({c['scheme']['year']}).</p>
+</header>
+{_summary(a, c)}
+{_outlook_section(c)}
+{_lab_section(c)}
+<section id="cautions"><h2>Health cautions</h2><ul>{caution_items}</ul></section>
+<div class="details">
+{_drivers_section(c)}
 <section id="freshness"><h2>Data freshness</h2><table>
-<tr><th>Last weather reading</th><td>{e(str(fr['last_weather_local']))}
-({'n/a' if fr['weather_age_days'] is None else f"{fr['weather_age_days'] * 24:.1f} h before issue"})</td></tr>
-<tr><th>Last sample</th><td>{e(str(o['last_sampled_at']))}
-({'n/a' if o['age_days'] is None else f"{o['age_days']:.0f} days old"})</td></tr>
-<tr><th>Lab delay assumed</th><td>{fr['lab_delay_days']:g} days when no reported date</td></tr>
+<tr><th>Last weather reading</th><td>{e(str(fr['last_weather_local'] or 'none'))} ({e(weather_age)})</td></tr>
+<tr><th>Last sample</th><td>{e(str(o['last_sampled_at'] or 'none'))} ({e(sample_age)})</td></tr>
+<tr><th>Lab delay assumed</th><td>{number(fr['lab_delay_days'])} days when no reported date</td></tr>
 </table></section>
-
-{forecast_sections}
-
-<section id="plots"><h2>Plots</h2>
-<img alt="Cell counts of the last 120 days on a log scale with the alert-level lines" src="{figs['counts']}">
-<img alt="Probability of reaching each level, last 120 days" src="{figs['probability']}">
-<img alt="Weather drivers: water temperature, degree-days, wind run, calm hours, rain"
- src="{figs['drivers']}">
-</section>
-
+{plots}
 <section id="quality"><h2>Data quality</h2><ul>{quality}</ul></section>
-
-<section id="cautions"><h2>Health cautions</h2><ul>{cautions}</ul></section>
-
-<section id="deferral"><p class="deferral">{e(c['deferral'])}</p></section>
-
 <section id="model"><h2>Model</h2><p class="small">cyanorisk {e(m['cyanorisk_version'])};
-trained on issue days {e(' to '.join(m['training_window'] or ['?', '?']))}; training data
-fingerprint {e(str(m['fingerprint'])[:16])}. Scheme source: {e(c['scheme']['source'])}.</p></section>
+trained on issue days {e(trained)}; training data fingerprint {e(str(m['fingerprint'])[:16])}.
+Scheme source: {e(c['scheme']['source'])}.</p></section>
+</div>
+<section id="deferral"><p class="deferral">{e(c['deferral'])}</p></section>
 </body></html>
 """
 
@@ -196,30 +292,18 @@ def render_json(a: Assessment) -> str:
 
 
 def render_text(a: Assessment) -> str:
-    """A plain-text summary for e-mail."""
+    """A plain-text summary for e-mail: the same statements as the page's summary strip."""
     c = report_document(a)
-    f, o = c["forecast"], c["observed"]
     lines = [f"{c['site']['name']} - bloom risk for {c['as_of']} (issued {c['issue_time_local']})",
-             "", c["headline"], ""]
-    if c["status"] == STATUS_NONE:
-        return "\n".join(lines + ["Cautions:"] + [f"- {x}" for x in c["cautions"]]
-                          + ["", c["deferral"]]) + "\n"
-    if c["status"] != STATUS_ASSESSED:
-        lines.append("No probabilities are given: the data are insufficient.")
-        lines += ["", "Cautions:"] + [f"- {x}" for x in c["cautions"]] + ["", c["deferral"]]
-        return "\n".join(lines) + "\n"
-    if o["last_sampled_at"]:
-        lines.append(f"Last sample: {o['last_sampled_at']}, "
-                     f"{_fmt_cells(o['cyano_cells_per_ml'], o['censor'])} ({o['level']}), "
-                     f"{o['age_days']:.0f} days old.")
-    lines.append("Probability of reaching each level within "
-                 f"{f['horizon_days']} days: "
-                 + ", ".join(f"{n} {p:.0%}" for n, p in f["probabilities"].items()))
-    lo, hi = f["interval_80_cells_per_ml"]
-    lines.append(f"Expected count: {f['expected_cells_per_ml']:,.0f} cells/mL "
-                 f"(80% interval {lo:,.0f} to {hi:,.0f}).")
-    lines.append("Main drivers: " + "; ".join(f"{driver_label(d['driver'])} {d['direction']} the risk"
-                                              for d in f["drivers"][:3]))
+             "", c["headline"], "",
+             f"Level stated: {c['level'] or 'not known'} ({_basis_text(c)}).",
+             f"Lab: {_last_result(c)}",
+             f"Outlook: {_outlook_line(c)}"]
+    lines += [f"Toxins: {t}" for t in _toxin_lines(c)]
+    if c["sampling"] is not None:
+        lines.append(f"Next sample: {_sampling_line(c)}")
+    lines += ["", "Since the last report:"] + [f"- {x}" for x in c["changes"]]
+    lines += ["", "What to do:"] + [f"- {x}" for x in c["actions"]]
     lines += ["", "Cautions:"] + [f"- {x}" for x in c["cautions"]]
     lines += ["", c["deferral"]]
     return "\n".join(lines) + "\n"

@@ -31,6 +31,10 @@ def scheme_content(scheme: Scheme) -> dict[str, Any]:
                              "status": t.status} for t in lvl.thresholds] for lvl in scheme.levels]}
 
 
+def _utc(ts: pd.Timestamp | None) -> str | None:
+    return None if ts is None or pd.isna(ts) else pd.Timestamp(ts).tz_convert("UTC").isoformat()
+
+
 def report_document(a: Assessment) -> dict[str, Any]:
     """The JSON-ready document of an assessment (see the schema)."""
     spec, f, o, fr, m = a.spec, a.forecast, a.observed, a.freshness, a.model
@@ -39,35 +43,62 @@ def report_document(a: Assessment) -> dict[str, Any]:
     thresholds = f.thresholds
     model: dict[str, Any] = {"cyanorisk_version": __version__,
                              "trained_with": m.trained_with, "training_window": m.training_window,
-                             "fingerprint": m.fingerprint}
+                             "fingerprint": m.fingerprint, "left_out": list(m.left_out)}
     if m.drivers is not None:
         model["drivers"] = m.drivers
+    lab = a.in_force
+    s = a.sampling
     return {
         "schema": SCHEMA,
         "site": {"id": spec.site_id, "name": spec.name, "use": spec.use, "timezone": tz},
         "as_of": str(a.as_of.date()), "issue_time_utc": a.issue.isoformat(),
         "issue_time_local": local_text(a.issue, tz),
         "status": a.status, "status_reasons": list(a.reasons), "headline": a.headline,
+        "level": a.level, "level_rank": a.level_rank, "level_basis": a.level_basis,
+        "in_force": {"level": lab.level, "level_rank": lab.rank,
+                     "set_by_sampled_at": local_text(lab.set_by_sampled_at, tz),
+                     "samples_below_since": lab.below_since,
+                     "step_down_samples": lab.step_down_samples,
+                     "step_down_rule": lab.step_down_rule},
+        "actions": list(a.actions),
+        "changes": list(a.changes),
+        "sampling": None if s is None else {
+            "every_days": s.every_days, "source": s.source,
+            "last_sampled_at": local_text(s.last_sampled_at, tz),
+            "next_due": None if s.next_due is None else str(s.next_due.date()),
+            "overdue": s.overdue},
+        "toxins": [{"measure": t.measure, "value_ug_per_l": t.value_ug_per_l, "censor": t.censor,
+                    "sampled_at": local_text(t.sampled_at, tz),
+                    "guideline_values": [{"value_ug_per_l": g.value_ug_per_l, "what": g.what,
+                                          "source": g.source, "short": g.short,
+                                          "status": g.status,
+                                          "exceeded": g in t.above} for g in t.values]}
+                   for t in a.toxins],
         "scheme": scheme_content(spec.scheme),
         "forecast": {
             "level_rank": f.level_rank, "level": f.level, "horizon_days": f.horizon_days,
-            "probabilities": dict(f.probabilities),
+            "watch": f.watch,
+            "probabilities": None if f.probabilities is None else dict(f.probabilities),
             "warn_at": {n: thresholds.at(n) for n in names} if thresholds else {},
             "thresholds_source": thresholds.source if thresholds else "not applied",
-            "climatology": dict(f.climatology), "persistence": dict(f.persistence),
+            "thresholds_tuned": bool(thresholds and thresholds.tuned),
+            "climatology": None if f.climatology is None else dict(f.climatology),
+            "persistence": None if f.persistence is None else dict(f.persistence),
+            "peak_band": f.peak_band,
             "expected_cells_per_ml": f.expected_cells_per_ml,
             "interval_80_cells_per_ml": (list(f.interval_80_cells_per_ml)
                                          if f.interval_80_cells_per_ml else None),
+            "count_note": f.count_note,
             "drivers": list(f.drivers), "missing_drivers": list(f.missing_drivers),
         },
         "observed": {
             "last_sampled_at": local_text(o.last_sampled_at, tz),
+            "last_sampled_at_utc": _utc(o.last_sampled_at),
             "known_since": local_text(o.known_since, tz),
             "cyano_cells_per_ml": o.cyano_cells_per_ml, "censor": o.censor, "level": o.level,
             "age_days": o.age_days,
         },
-        "freshness": {"last_weather_utc": None if fr.last_weather is None
-                      else fr.last_weather.isoformat(),
+        "freshness": {"last_weather_utc": _utc(fr.last_weather),
                       "last_weather_local": local_text(fr.last_weather, tz),
                       "weather_age_days": fr.weather_age_days, "lab_delay_days": fr.lab_delay_days},
         "quality": a.quality,

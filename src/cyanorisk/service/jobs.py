@@ -33,9 +33,10 @@ import pandas as pd
 from cyanorisk.atomic import write_group
 from cyanorisk.config import Config, Site
 from cyanorisk.errors import RunLockedError
-from cyanorisk.forecast import STATUS_NONE, Assessment, no_assessment
+from cyanorisk.forecast import STATUS_ASSESSED, STATUS_NONE, Assessment, changes_since, no_assessment
 from cyanorisk.pipeline import SitePipeline
 from cyanorisk.pipeline.clean import file_digest
+from cyanorisk.service.history import previous_report
 from cyanorisk.service.store import IssuedReport, Store
 from cyanorisk.version import __version__
 
@@ -136,16 +137,22 @@ def _clean(pipeline: SitePipeline, store: Store, when: str) -> None:
 
 def notify(config: Config, pipeline: SitePipeline, assessment: Assessment,
            previous: IssuedReport | None, revision: int) -> str | None:
-    """Write (and mail, when configured) a notification when the level rose; the outbox path."""
-    f = assessment.forecast
-    rank = f.level_rank
-    before = previous.level_rank if previous is not None else None
-    if rank is None or rank <= (before or 0):
-        return None
+    """Write (and mail, when configured) a notification when the level stated rose, or when a
+    site that had an outlook has none (insufficient data, no assessment); the outbox path.
+    Levels are compared by name in the site's scheme (ranks change when a scheme gains a
+    level)."""
     spec = assessment.spec
+    rank = assessment.level_rank
+    before = spec.scheme.rank_of(previous.level) if previous is not None else None
+    rose = rank is not None and rank > (before or 0)
+    lost = (previous is not None and previous.status == STATUS_ASSESSED
+            and assessment.status != STATUS_ASSESSED)
+    if not (rose or lost):
+        return None
     day = str(assessment.as_of.date())
     msg = EmailMessage()
-    msg["Subject"] = f"cyanorisk: {spec.name} rose to {f.level} ({day})"
+    msg["Subject"] = (f"cyanorisk: {spec.name} rose to {assessment.level} ({day})" if rose else
+                      f"cyanorisk: {spec.name}: {assessment.status}, no outlook ({day})")
     msg["From"] = config.service.mail_from
     msg["To"] = ", ".join(config.service.mail_to) or "water-quality team"
     was = previous.level if previous is not None else "no earlier report"
@@ -163,6 +170,8 @@ def _issue(config: Config, pipeline: SitePipeline, store: Store, as_of: str, run
            when: str, assessment: Assessment, inputs: dict[str, Any], fp: str,
            previous_same_day: IssuedReport | None, failure: str | None = None) -> SiteOutcome:
     site_id = pipeline.spec.site_id
+    previous = store.latest_report(site_id, as_of) or store.latest_report(site_id, before=as_of)
+    assessment.changes = changes_since(assessment, previous_report(store, site_id, as_of))
     paths = [str(p) for p in pipeline.write_report(assessment)]
     f = assessment.forecast
     revision = previous_same_day.revision + 1 if previous_same_day else 1
@@ -171,17 +180,17 @@ def _issue(config: Config, pipeline: SitePipeline, store: Store, as_of: str, run
                                              ["status changed"]))
     if failure is not None:
         reason = f"no assessment: {failure}; {reason}"
-    previous = store.latest_report(site_id, as_of) or store.latest_report(site_id, before=as_of)
-    note = (notify(config, pipeline, assessment, previous, revision)
-            if assessment.status != STATUS_NONE else None)
+    note = notify(config, pipeline, assessment, previous, revision)
     thresholds = {"warn_at": dict(f.thresholds.warn_at) if f.thresholds else {},
                   "source": f.thresholds.source if f.thresholds else "not applied"}
     store.record_report(IssuedReport(
         site_id=site_id, as_of=as_of, revision=revision, status=assessment.status,
-        level_rank=f.level_rank, level=f.level, probabilities=dict(f.probabilities),
+        level_rank=assessment.level_rank, level=assessment.level,
+        probabilities=dict(f.probabilities or {}),
         model_version=assessment.model.trained_with, thresholds=thresholds, fingerprint=fp,
         inputs=inputs, paths=paths, reason=reason, issued_at=when, run_id=run_id))
-    return SiteOutcome(site_id, "issued", revision, assessment.status, f.level, reason, paths, note)
+    return SiteOutcome(site_id, "issued", revision, assessment.status, assessment.level, reason,
+                       paths, note)
 
 
 def run_site(config: Config, site: Site, store: Store, as_of: str, run_id: int,
@@ -207,7 +216,8 @@ def run_site(config: Config, site: Site, store: Store, as_of: str, run_id: int,
             return SiteOutcome(site.id, "failed", previous.revision, STATUS_NONE, None, reason,
                                previous.paths)
         outcome = _issue(config, pipeline, store, as_of, run_id, clock(),
-                         no_assessment(site.spec, pd.Timestamp(as_of), reason), inputs, fp,
+                         no_assessment(site.spec, pd.Timestamp(as_of), reason,
+                                       pipeline.lab_level_or_none(as_of)), inputs, fp,
                          previous, failure=reason)
         outcome.action = "failed"
         outcome.reason = reason
