@@ -20,12 +20,12 @@ import jsonschema
 import pandas as pd
 import pytest
 
+from cyanorisk import words
 from cyanorisk.cli import main
 from cyanorisk.config import load_config
 from cyanorisk.features import issue_instants
 from cyanorisk.forecast import STATUS_ASSESSED, STATUS_INSUFFICIENT, Assessment, assess
 from cyanorisk.ingest.samples import empty_totals
-from cyanorisk import words
 from cyanorisk.levels import DEFERRAL, GENERAL_CAUTIONS, Role, cautions
 from cyanorisk.pipeline import SitePipeline
 from cyanorisk.report.daily import render_json
