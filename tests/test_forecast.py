@@ -411,8 +411,8 @@ def test_report_json_is_standard_json_when_a_driver_is_missing(demo_site):
 
 def test_general_cautions_say_what_they_must():
     text = " ".join(GENERAL_CAUTIONS)
-    for words in GENERAL_KEYWORDS:
-        assert words in text
+    for phrase in GENERAL_KEYWORDS:
+        assert phrase in text
 
 
 def assert_general_cautions(content: dict, present: bool) -> None:
