@@ -20,7 +20,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from cyanorisk.align import known_from
+from cyanorisk.align import known_from, lab_record
 from cyanorisk.cli import main
 from cyanorisk.drivers import Effect, lookup
 from cyanorisk.forecast import (
@@ -63,7 +63,8 @@ def scan(demo_site):
     spec = dataclasses.replace(demo_site.spec, history_days=1)
     days = pd.date_range("2023-07-01", "2025-01-14", freq="D")
     assert set(season_of(days, spec.season_start_month)) == {2023, 2024}
-    return [assess_day(demo_site, d, spec=spec, window_days=10) for d in days]
+    record = lab_record(demo_site.totals, spec.scheme, spec.lab_delay_days, spec.timezone)
+    return [assess_day(demo_site, d, spec=spec, window_days=10, totals=record) for d in days]
 
 
 # ---------------------------------------------------------------------------------------------

@@ -46,6 +46,18 @@ def level_slug(name: str) -> str:
     return "_".join(p for p in out.split("_") if p)
 
 
+def lab_record(totals: pd.DataFrame, scheme: Scheme, lab_delay_days: float,
+               timezone: str) -> pd.DataFrame:
+    """The per-sample totals with when each result became known (``known_at``, see
+    :func:`known_from`) and its observed level (``level``), oldest sample first. Functions
+    given such a table use these columns instead of computing them again."""
+    if "known_at" in totals and "level" in totals:
+        return totals
+    out = totals.assign(known_at=known_from(totals, lab_delay_days, timezone).to_numpy(),
+                        level=classify(totals, scheme))
+    return out.sort_values("sampled_at", kind="stable").reset_index(drop=True)
+
+
 def last_known(issues: pd.DataFrame, totals: pd.DataFrame, scheme: Scheme,
                lab_delay_days: float, timezone: str) -> pd.DataFrame:
     """The last cyanobacterial total known at each issue instant (as-of join by site).
@@ -55,7 +67,8 @@ def last_known(issues: pd.DataFrame, totals: pd.DataFrame, scheme: Scheme,
     issues : pandas.DataFrame
         Columns ``site_id`` and ``issue_time_utc``.
     totals : pandas.DataFrame
-        Per-sample totals (``sample_totals``) with ``site_id``, ``sampled_at``, ``reported_at``.
+        Per-sample totals (``sample_totals``) with ``site_id``, ``sampled_at``, ``reported_at``
+        (or a :func:`lab_record` of them).
 
     Returns
     -------
@@ -65,9 +78,7 @@ def last_known(issues: pd.DataFrame, totals: pd.DataFrame, scheme: Scheme,
         ``last_count_age_days`` (from sampling to issue [d]), ``last_level`` (observed level of
         that sample, 0 below the first), ``last_sampled_at``, ``last_known_at``.
     """
-    t = totals.copy()
-    t["known_at"] = known_from(t, lab_delay_days, timezone)
-    t["level"] = classify(t, scheme)
+    t = lab_record(totals, scheme, lab_delay_days, timezone)
     t = t.dropna(subset=["cyano_cells_per_ml"]).sort_values(["known_at", "sampled_at"], kind="stable")
     # the last count is the newest sample known so far: a late result for an older sample does
     # not replace a newer one already known

@@ -201,6 +201,15 @@ def season_scores(forecasts: pd.DataFrame, exceedances: pd.DataFrame, names: lis
     return pd.DataFrame(rows)
 
 
+def _pooled(seasons, p_s: list, o_s: list, c_s: list) -> tuple[float, float, float]:
+    """Brier score, Brier skill against climatology and ROC AUC of the seasons (indices into
+    the per-season arrays of forecasts, outcomes and climatology) pooled."""
+    p, o, c = (np.concatenate([x[i] for i in seasons]) for x in (p_s, o_s, c_s))
+    keep = ~np.isnan(p) & ~np.isnan(o) & ~np.isnan(c)
+    return (brier_score(p[keep], o[keep]), brier_skill_score(p[keep], o[keep], c[keep]),
+            roc_auc(p[keep], o[keep]))
+
+
 def overall_scores(forecasts: pd.DataFrame, names: list[str], n_boot: int = 200,
                    seed: int = 1) -> pd.DataFrame:
     """Pooled scores per level and source with 90% bootstrap intervals (seasons resampled)."""
@@ -209,22 +218,18 @@ def overall_scores(forecasts: pd.DataFrame, names: list[str], n_boot: int = 200,
     rng = np.random.default_rng(seed)
     rows = []
     seasons = np.array(sorted(forecasts["season"].unique()))
+    draws = [rng.choice(len(seasons), len(seasons)) for _ in range(n_boot)] \
+        if len(seasons) > 1 else []
     for level in names:
         f = forecasts[forecasts["level"] == level]
-        by_season = {s: f[f["season"] == s] for s in seasons}
+        parts = [f[f["season"] == s] for s in seasons]
+        o_s = [g["outcome"].to_numpy(dtype=float) for g in parts]
+        c_s = [g["climatology"].to_numpy(dtype=float) for g in parts]
         for source in SOURCES:
-            def stats_of(frame: pd.DataFrame, source: str = source) -> tuple[float, float, float]:
-                p = frame[COLUMN[source]].to_numpy(dtype=float)
-                o = frame["outcome"].to_numpy(dtype=float)
-                c = frame["climatology"].to_numpy(dtype=float)
-                keep = ~np.isnan(p) & ~np.isnan(o) & ~np.isnan(c)
-                return (brier_score(p[keep], o[keep]), brier_skill_score(p[keep], o[keep], c[keep]),
-                        roc_auc(p[keep], o[keep]))
-
-            point = stats_of(f)
-            boot = np.array([stats_of(pd.concat([by_season[s] for s in
-                                                 rng.choice(seasons, len(seasons))]))
-                             for _ in range(n_boot)]) if len(seasons) > 1 else np.full((1, 3), np.nan)
+            p_s = [g[COLUMN[source]].to_numpy(dtype=float) for g in parts]
+            point = _pooled(range(len(seasons)), p_s, o_s, c_s)
+            boot = (np.array([_pooled(d, p_s, o_s, c_s) for d in draws]) if draws
+                    else np.full((1, 3), np.nan))
             with warnings.catch_warnings():  # a score NaN in every resample stays NaN
                 warnings.simplefilter("ignore", RuntimeWarning)
                 lo, hi = np.nanpercentile(boot, 5, axis=0), np.nanpercentile(boot, 95, axis=0)

@@ -23,7 +23,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from cyanorisk.align import known_from, last_known
+from cyanorisk.align import lab_record, last_known
 from cyanorisk.drivers import Effect, lookup
 from cyanorisk.features import FeatureBuilder, issue_instants
 from cyanorisk.levels import (
@@ -33,7 +33,6 @@ from cyanorisk.levels import (
     Role,
     ToxinValue,
     cautions,
-    classify,
     level_in_force,
     level_name,
     main_action,
@@ -302,9 +301,8 @@ def known_samples(totals: pd.DataFrame, issue: pd.Timestamp, spec: SiteSpec) -> 
     mine = totals[totals["site_id"] == spec.site_id] if len(totals) else totals
     if mine.empty:
         return mine.assign(level=pd.Series(dtype=float), known_at=pd.Series(dtype="datetime64[ns, UTC]"))
-    known_at = known_from(mine, spec.lab_delay_days, spec.timezone)
-    out = mine.assign(known_at=known_at.to_numpy(), level=classify(mine, spec.scheme))
-    return out[out["known_at"] <= issue].sort_values("sampled_at", kind="stable").reset_index(drop=True)
+    record = lab_record(mine, spec.scheme, spec.lab_delay_days, spec.timezone)
+    return record[record["known_at"] <= issue].reset_index(drop=True)
 
 
 def lab_level(samples: pd.DataFrame, spec: SiteSpec) -> InForce:
@@ -536,7 +534,8 @@ def assess(spec: SiteSpec, models: SiteModels, weather: pd.DataFrame, totals: pd
     issue = drivers["issue_time_utc"].iloc[-1]
     table = drivers.reset_index()
     table.insert(0, "site_id", spec.site_id)
-    site_totals = totals[totals["site_id"] == spec.site_id]
+    site_totals = lab_record(totals[totals["site_id"] == spec.site_id], scheme,
+                             spec.lab_delay_days, tz)
     table = pd.concat([table, last_known(table, site_totals, scheme, spec.lab_delay_days, tz)],
                       axis=1)
     X = prepare(table)

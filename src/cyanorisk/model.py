@@ -137,30 +137,79 @@ def _ordinal_nll(params: np.ndarray, Z: np.ndarray, y: np.ndarray,
     return nll, np.concatenate((g_beta, g_raw))
 
 
-def _fd_hessian(grad, x: np.ndarray) -> np.ndarray:
-    """Hessian by central differences of an analytic gradient (symmetrised)."""
-    h = 1e-5 * np.maximum(1.0, np.abs(x))
-    hess = np.empty((len(x), len(x)))
-    for i in range(len(x)):
-        e = np.zeros(len(x))
-        e[i] = h[i]
-        hess[i] = (grad(x + e) - grad(x - e)) / (2 * h[i])
-    return (hess + hess.T) / 2
+def _natural_hessian(beta: np.ndarray, theta: np.ndarray, Z: np.ndarray,
+                     y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Hessian of the negative log-likelihood in (beta, theta), analytic, and the gradient in
+    theta.
+
+    With P = F(u) - F(l) for an observation of class y (u = theta_y - eta, l = theta_{y-1} - eta),
+    f = F(1 - F) and f' = f(1 - 2F), the second derivatives of log P are
+    d2/deta2 = (f'(u) - f'(l))/P - A^2 with A = (f(u) - f(l))/P;
+    d2/dtheta_u2 = f'(u)/P - (f(u)/P)^2; d2/dtheta_l2 = -f'(l)/P - (f(l)/P)^2;
+    d2/dtheta_u dtheta_l = f(u)f(l)/P^2; d2/deta dtheta_u = -f'(u)/P + f(u)A/P and
+    d2/deta dtheta_l = f'(l)/P - f(l)A/P (chain rule on the logistic CDF; McCullagh 1980).
+    """
+    n_cuts, p = len(theta), len(beta)
+    eta = Z @ beta
+    big = np.concatenate(([-np.inf], theta, [np.inf]))
+    Fu, Fl = expit(big[y + 1] - eta), expit(big[y] - eta)
+    fu, fl = Fu * (1 - Fu), Fl * (1 - Fl)
+    dfu, dfl = fu * (1 - 2 * Fu), fl * (1 - 2 * Fl)
+    P = np.clip(Fu - Fl, 1e-300, None)
+    A = (fu - fl) / P
+    h_ee = (dfu - dfl) / P - A ** 2
+    h_eu = -dfu / P + fu * A / P
+    h_el = dfl / P - fl * A / P
+    h = np.zeros((p + n_cuts, p + n_cuts))
+    h[:p, :p] = -(Z.T * h_ee) @ Z
+    g_theta = np.zeros(n_cuts)
+    for k in range(n_cuts):  # cut k is the upper cut of class k and the lower of class k+1
+        up, lo = y == k, y == k + 1
+        h[:p, p + k] = h[p + k, :p] = -(Z[up].T @ h_eu[up] + Z[lo].T @ h_el[lo])
+        h[p + k, p + k] = -(np.sum(dfu[up] / P[up] - (fu[up] / P[up]) ** 2)
+                            + np.sum(-dfl[lo] / P[lo] - (fl[lo] / P[lo]) ** 2))
+        if k + 1 < n_cuts:
+            both = y == k + 1  # upper cut k+1, lower cut k
+            h[p + k, p + k + 1] = h[p + k + 1, p + k] = -np.sum(fu[both] * fl[both] / P[both] ** 2)
+        g_theta[k] = -np.sum(fu[up] / P[up]) + np.sum(fl[lo] / P[lo])
+    return h, g_theta
 
 
-def _newton(fun, x: np.ndarray, tol: float, max_iter: int = 100) -> tuple[np.ndarray, bool]:
-    """Damped Newton's method on a smooth convex-near-the-optimum objective ``fun -> (f, g)``."""
+def _raw_hessian(params: np.ndarray, Z: np.ndarray, y: np.ndarray, n_cuts: int) -> np.ndarray:
+    """Hessian of the negative log-likelihood in the fitted parameters (beta, theta_1 and the
+    log increments of the cuts): the natural Hessian through the Jacobian J of the cuts, plus
+    the term of their curvature, exp(raw_j) x (the gradient summed over the cuts above j)."""
+    p = Z.shape[1]
+    beta, raw = params[:p], params[p:]
+    theta = np.cumsum(np.concatenate(([raw[0]], np.exp(raw[1:]))))
+    h, g_theta = _natural_hessian(beta, theta, Z, y)
+    J = np.tril(np.ones((n_cuts, n_cuts))) * np.concatenate(([1.0], np.exp(raw[1:])))[None, :]
+    out = np.empty_like(h)
+    out[:p, :p] = h[:p, :p]
+    out[:p, p:] = h[:p, p:] @ J
+    out[p:, :p] = out[:p, p:].T
+    curvature = np.concatenate(([0.0], np.exp(raw[1:]) * np.cumsum(g_theta[::-1])[::-1][1:]))
+    out[p:, p:] = J.T @ h[p:, p:] @ J + np.diag(curvature)
+    return out
+
+
+def _newton(fun, hess, x: np.ndarray, tol: float, max_iter: int = 100) -> tuple[np.ndarray, bool]:
+    """Damped Newton's method on a smooth convex-near-the-optimum objective ``fun -> (f, g)``
+    with its Hessian ``hess``."""
     f, g = fun(x)
     for _ in range(max_iter):
         if np.max(np.abs(g)) < tol:
             return x, True
-        hess = _fd_hessian(lambda v: fun(v)[1], x)
         try:
-            step = -np.linalg.solve(hess + 1e-10 * np.eye(len(x)), g)
+            step = -np.linalg.solve(hess(x) + 1e-10 * np.eye(len(x)), g)
         except np.linalg.LinAlgError:
             return x, False
         if g @ step >= 0:  # not a descent direction: fall back to the gradient
             step = -g / max(1.0, np.max(np.abs(g)))
+        elif -(g @ step) / 2 < 1e-13 * max(1.0, abs(f)):
+            # the Newton decrement is below the rounding of f: a line search cannot see any
+            # progress, and the full step lands on the optimum (Boyd & Vandenberghe 2004, 9.5)
+            return x + step, True
         t = 1.0
         while t > 1e-10:
             f_new, g_new = fun(x + t * step)
@@ -174,16 +223,16 @@ def _newton(fun, x: np.ndarray, tol: float, max_iter: int = 100) -> tuple[np.nda
 
 
 def _fit_ordinal(Z: np.ndarray, y: np.ndarray, n_cuts: int) -> _OrdinalFit:
-    """Fit by damped Newton's method (analytic gradient, Hessian by differences of it), with
-    L-BFGS as a fallback; the covariance of (beta, theta) is the inverse Hessian of the
-    negative log-likelihood at the optimum."""
+    """Fit by damped Newton's method (analytic gradient and Hessian), with L-BFGS as a
+    fallback; the covariance of (beta, theta) is the inverse Hessian of the negative
+    log-likelihood at the optimum."""
     p = Z.shape[1]
 
     def fun(v: np.ndarray) -> tuple[float, np.ndarray]:
         return _ordinal_nll(v, Z, y, n_cuts)
 
     start = np.concatenate((np.zeros(p), [-1.0], np.zeros(n_cuts - 1)))
-    x, ok = _newton(fun, start, tol=1e-8)
+    x, ok = _newton(fun, lambda v: _raw_hessian(v, Z, y, n_cuts), start, tol=1e-8)
     if not ok:
         from scipy import optimize  # the fallback only
 
@@ -195,20 +244,10 @@ def _fit_ordinal(Z: np.ndarray, y: np.ndarray, n_cuts: int) -> _OrdinalFit:
                            "outcomes perfectly, or be collinear")
     beta, raw = x[:p], x[p:]
     theta = np.cumsum(np.concatenate(([raw[0]], np.exp(raw[1:]))))
-    natural = np.concatenate((beta, theta))
-
-    def grad_natural(v: np.ndarray) -> np.ndarray:
-        th = v[p:]
-        raw_v = np.concatenate(([th[0]], np.log(np.maximum(np.diff(th), 1e-300))))
-        _, g = _ordinal_nll(np.concatenate((v[:p], raw_v)), Z, y, n_cuts)
-        # from d/d(raw) to d/d(theta): theta = J raw-map, solve the triangular chain rule
-        jac = np.tril(np.ones((n_cuts, n_cuts))).T * np.concatenate(([1.0], np.diff(th)))[None, :].T
-        return np.concatenate((g[:p], np.linalg.solve(jac, g[p:])))
-
     try:
-        cov = np.linalg.inv(_fd_hessian(grad_natural, natural))
+        cov = np.linalg.inv(_natural_hessian(beta, theta, Z, y)[0])
     except np.linalg.LinAlgError:
-        cov = np.full((len(natural), len(natural)), np.nan)
+        cov = np.full((p + n_cuts, p + n_cuts), np.nan)
     return _OrdinalFit(beta, theta, cov, -float(fun(x)[0]))
 
 

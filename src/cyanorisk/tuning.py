@@ -28,58 +28,66 @@ def _pct(share: float) -> str:
     return f"{round(100 * share, 1):g}%"
 
 
+def _counts(p: np.ndarray, o: np.ndarray, thresholds: np.ndarray) -> np.ndarray:
+    """Hits, false alarms, misses and correct negatives at every threshold: a (4, n) array."""
+    keep = ~np.isnan(p) & ~np.isnan(o)
+    warn = p[keep, None] >= thresholds[None, :]
+    event = (o[keep] == 1)[:, None]
+    return np.stack([(warn & event).sum(axis=0), (warn & ~event).sum(axis=0),
+                     (~warn & event).sum(axis=0), (~warn & ~event).sum(axis=0)])
+
+
+def _table(counts: np.ndarray, thresholds: np.ndarray) -> pd.DataFrame:
+    a, b, c, d = counts
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return pd.DataFrame({"threshold": thresholds, "hits": a, "false_alarms": b, "misses": c,
+                             "correct_negatives": d, "hit_rate": a / (a + c),
+                             "false_alarm_ratio": b / (a + b), "pofd": b / (b + d),
+                             "csi": a / (a + b + c)})
+
+
+def _seasons(forecasts: pd.DataFrame) -> list[tuple[int, np.ndarray, np.ndarray, np.ndarray]]:
+    """Per season: its issue dates, probabilities and outcomes as arrays, in date order."""
+    out = []
+    for s, g in forecasts.groupby("season", sort=True):
+        out.append((s, g["issue_date"].to_numpy(dtype="datetime64[D]"),
+                    g["probability"].to_numpy(dtype=float), g["outcome"].to_numpy(dtype=float)))
+    return out
+
+
 def sweep(forecasts: pd.DataFrame, exceedances: pd.DataFrame,
           thresholds: np.ndarray = THRESHOLDS, lead_times: bool = True) -> pd.DataFrame:
     """The trade-off table of one level: a row per threshold.
 
     ``forecasts``: the backtest rows of one level (issue_date, season, probability, outcome,
     horizon_days); ``exceedances``: its first exceedance per season. Contingency counts follow
-    :func:`cyanorisk.verify.contingency`, computed for all thresholds at once.
+    :func:`cyanorisk.verify.contingency` (in days), computed for all thresholds at once; with
+    ``lead_times``, the mean lead time and the counts in events (:func:`verify.event_counts`).
     """
-    p = forecasts["probability"].to_numpy(dtype=float)
-    o = forecasts["outcome"].to_numpy(dtype=float)
-    keep = ~np.isnan(p) & ~np.isnan(o)
-    warn = p[keep, None] >= thresholds[None, :]
-    event = (o[keep] == 1)[:, None]
-    a = (warn & event).sum(axis=0)
-    b = (warn & ~event).sum(axis=0)
-    c = (~warn & event).sum(axis=0)
-    d = (~warn & ~event).sum(axis=0)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        table = pd.DataFrame({"threshold": thresholds, "hits": a, "false_alarms": b, "misses": c,
-                              "correct_negatives": d, "hit_rate": a / (a + c),
-                              "false_alarm_ratio": b / (a + b), "pofd": b / (b + d),
-                              "csi": a / (a + b + c)})
+    table = _table(_counts(forecasts["probability"].to_numpy(dtype=float),
+                           forecasts["outcome"].to_numpy(dtype=float), thresholds), thresholds)
     if lead_times:
-        table["mean_lead_time_days"] = [_mean_lead(forecasts, exceedances, t) for t in thresholds]
-        events = [_events(forecasts, t) for t in thresholds]
+        first = dict(zip(exceedances["season"], exceedances["first_exceedance"], strict=True))
+        horizon = int(forecasts["horizon_days"].iloc[0]) if len(forecasts) else 7
+        seasons = _seasons(forecasts)
+        leads, events = [], []
+        for threshold in thresholds:
+            lead, total = [], {"event_hits": 0, "event_misses": 0, "false_alarm_spells": 0}
+            for s, dates, p, o in seasons:
+                warned = p >= threshold
+                counted = event_counts(dates, warned, o)
+                for key in total:
+                    total[key] += counted[key]
+                ex = first.get(s)
+                if ex is not None and not pd.isna(ex):
+                    lead.append(lead_time_days(dates, warned, [ex], horizon))
+            lead = [x for x in lead if x == x]
+            leads.append(float(np.mean(lead)) if lead else float("nan"))
+            events.append(total)
+        table["mean_lead_time_days"] = leads
         for key in ("event_hits", "event_misses", "false_alarm_spells"):
             table[key] = [e[key] for e in events]
     return table
-
-
-def _events(forecasts: pd.DataFrame, threshold: float) -> dict[str, int]:
-    """Hits and misses in events, summed over the seasons (:func:`verify.event_counts`)."""
-    total = {"event_hits": 0, "event_misses": 0, "false_alarm_spells": 0}
-    for _, g in forecasts.groupby("season", sort=True):
-        counted = event_counts(g["issue_date"].to_numpy(), g["probability"].to_numpy() >= threshold,
-                               g["outcome"].to_numpy(dtype=float))
-        for key in total:
-            total[key] += counted[key]
-    return total
-
-
-def _mean_lead(forecasts: pd.DataFrame, exceedances: pd.DataFrame, threshold: float) -> float:
-    first = dict(zip(exceedances["season"], exceedances["first_exceedance"], strict=True))
-    horizon = int(forecasts["horizon_days"].iloc[0]) if len(forecasts) else 7
-    leads = []
-    for s, g in forecasts.groupby("season", sort=True):
-        ex = first.get(s)
-        if ex is not None and not pd.isna(ex):
-            leads.append(lead_time_days(g["issue_date"].to_numpy(),
-                                        g["probability"].to_numpy() >= threshold, [ex], horizon))
-    leads = [x for x in leads if x == x]
-    return float(np.mean(leads)) if leads else float("nan")
 
 
 def choose_by_cost(table: pd.DataFrame, miss_cost: float) -> float:
@@ -173,12 +181,14 @@ def tune_level(forecasts: pd.DataFrame, exceedances: pd.DataFrame, level: str, *
     chosen = pick(table)
     rng = np.random.default_rng(seed)
     seasons = np.array(sorted(f["season"].unique()))
+    # the choice rules use counts only: a resample of seasons sums the seasons' counts
+    per_season = np.stack([_counts(p, o, THRESHOLDS) for _, _, p, o in _seasons(f)]) \
+        if len(seasons) else np.zeros((0, 4, len(THRESHOLDS)))
     boot = []
-    by_season = {s: f[f["season"] == s] for s in seasons}
     for _ in range(n_boot if len(seasons) > 1 else 0):
-        fb = pd.concat([by_season[s] for s in rng.choice(seasons, len(seasons))])
-        try:  # the choice rules use counts only, so the resamples need no lead times
-            boot.append(pick(sweep(fb, ex, THRESHOLDS, lead_times=False)))
+        drawn = rng.choice(len(seasons), len(seasons))
+        try:
+            boot.append(pick(_table(per_season[drawn].sum(axis=0), THRESHOLDS)))
         except ValueError:
             boot.append(np.nan)
     rule = (f"miss cost {miss_cost:g} (a missed exceedance costs {miss_cost:g} false alarms)"

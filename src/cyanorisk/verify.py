@@ -67,8 +67,22 @@ def roc_auc(score: np.ndarray, o: np.ndarray) -> float:
     n_pos, n_neg = int((o == 1).sum()), int((o == 0).sum())
     if n_pos == 0 or n_neg == 0:
         return float("nan")
-    ranks = pd.Series(s).rank(method="average").to_numpy()  # ties share their mean rank
+    ranks = average_ranks(s)  # ties share their mean rank
     return float((ranks[o == 1].sum() - n_pos * (n_pos + 1) / 2) / (n_pos * n_neg))
+
+
+def average_ranks(x: np.ndarray) -> np.ndarray:
+    """Ranks 1..n of the values, ties sharing their mean rank (as ``scipy.stats.rankdata``)."""
+    order = np.argsort(x, kind="mergesort")
+    sorted_x = x[order]
+    first = np.concatenate(([True], sorted_x[1:] != sorted_x[:-1]))
+    group = np.cumsum(first) - 1
+    starts = np.flatnonzero(first)
+    ends = np.concatenate((starts[1:], [len(x)]))
+    mean_rank = (starts + ends + 1) / 2.0  # mean of the 1-based ranks starts+1 .. ends
+    out = np.empty(len(x))
+    out[order] = mean_rank[group]
+    return out
 
 
 def roc_curve(score: np.ndarray, o: np.ndarray) -> pd.DataFrame:

@@ -55,7 +55,6 @@ def figures(a: Assessment, c: dict[str, Any]) -> dict[str, str]:
         out["probability"] = data_uri(fig)
     fig, axes = new_figure(8, 6, len(HISTORY_DRIVERS), 1, sharex=True)
     drivers_plot(a.history, list(HISTORY_DRIVERS), xlim, axes)
-    fig.suptitle("Weather drivers at each issue time", fontsize=9)
     out["drivers"] = data_uri(fig)
     return out
 
