@@ -37,6 +37,8 @@ def number(x: float | None, unit: str = "") -> str:
     --------
     >>> number(545.4, "km"), number(22.54, "degC"), number(0.997), number(0.0123, "ug/L")
     ('545 km', '22.5 degC', '1.0', '0.012 ug/L')
+    >>> number(0.3, "ug/L")
+    '0.3 ug/L'
     """
     if x is None or x != x:
         return "n/a"
@@ -47,8 +49,8 @@ def number(x: float | None, unit: str = "") -> str:
         text = f"{x:,.1f}"
     elif a == 0:
         text = "0"
-    else:  # two significant digits below 1
-        text = f"{x:.{max(1, 1 - math.floor(math.log10(a)))}f}"
+    else:  # two significant digits below 1, without trailing zeros
+        text = f"{x:.{max(1, 1 - math.floor(math.log10(a)))}f}".rstrip("0").rstrip(".")
     return f"{text} {unit}".strip()
 
 

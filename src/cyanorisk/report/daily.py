@@ -108,7 +108,7 @@ def _sampling_line(c: dict[str, Any], source: bool = False) -> str:
         return "no sample known: take one"
     due = date(pd.Timestamp(s["next_due"]))
     why = f": {s['source']}" if source else ""
-    text = f"due {due} (every {number(s['every_days'])} days at this level{why})"
+    text = f"due {due} (every {s['every_days']:g} days at this level{why})"
     return ("OVERDUE: " + text) if s["overdue"] else text
 
 
