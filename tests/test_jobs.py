@@ -569,6 +569,32 @@ def test_a_level_rise_notifies_once(tmp_path, demo_site):
     assert eml.read_bytes() == sent
 
 
+def test_losing_the_outlook_notifies_and_status_says_so(tmp_path, demo_site, capsys):
+    from cyanorisk.cli import main
+
+    path = make_config(tmp_path, demo_site)
+    config = load_config(path)
+    clock = Clock()
+    (first,) = run_daily("2025-01-14", config, clock=clock).sites  # the record's last day
+    assert first.status == "assessed"
+    stale = "2025-01-25"  # eleven days after the last weather reading: no outlook
+    (late,) = run_daily(stale, config, clock=clock).sites
+    assert late.status == "insufficient data"
+    doc = json.loads(Path(report_path(late.paths, "json")).read_text(encoding="utf-8"))
+    assert (doc["level"], doc["level_basis"]) == (doc["in_force"]["level"], "lab")
+    assert doc["level"] is not None  # the lab's level still stands
+    msg = email.message_from_bytes(Path(late.notification).read_bytes(),
+                                   policy=email.policy.default)
+    # a long subject is folded onto the next line (RFC 5322, 2.2.3): compare it unfolded
+    assert msg["Subject"].strip() == ("cyanorisk: Tallowbark Reservoir: insufficient data, no "
+                                      f"outlook ({stale})")
+    assert "Level in force from the lab" in msg.get_content()
+    assert main(["run", "--config", str(path), "--as-of", stale]) == 3  # documented exit status
+    capsys.readouterr()
+    assert main(["status", "--config", str(path)]) == 0
+    assert "status insufficient data" in capsys.readouterr().out
+
+
 class Collector:
     """aiosmtpd handler that keeps every envelope it receives."""
 
