@@ -57,6 +57,9 @@ from cyanorisk.spec import (
 )
 
 EMBEDDED_DEMO = "demo.toml"
+BLANK = "FILL IN"
+"""A value a drafted configuration leaves for the user (``cyanorisk init``): any string value that
+starts with it is refused, naming the key, until it is filled in."""
 USES = ("drinking", "recreation")
 
 __all__ = ["Config", "ConfigError", "Site", "embedded_demo_text", "load_config"]
@@ -301,6 +304,8 @@ class _Reader:
                 raise self.fail(full, "missing; it is required")
             return default
         value = table[key]
+        if isinstance(value, str) and value.startswith(BLANK):
+            raise self.fail(full, f"still to be filled in: {value[len(BLANK):].strip(' :')}")
         kinds = kind if isinstance(kind, tuple) else (kind,)
         if isinstance(value, bool) and bool not in kinds or not isinstance(value, kinds):
             names = " or ".join(k.__name__ for k in kinds)
@@ -401,6 +406,8 @@ class _Reader:
 
     def typed(self, value: Any, hint: Any, key: str) -> Any:
         """Check ``value`` against a type hint (str, int, float, bool, tuples, optionals)."""
+        if isinstance(value, str) and value.startswith(BLANK):
+            raise self.fail(key, f"still to be filled in: {value[len(BLANK):].strip(' :')}")
         options = typing.get_args(hint) if isinstance(hint, types.UnionType) else (hint,)
         for option in options:
             if option is type(None):
