@@ -248,6 +248,14 @@ def test_intervals_that_divide_a_day(tmp_path, text, expected):
     assert cfg.sites[0].interval == expected
 
 
+def test_plausible_dates_accept_toml_dates_and_strings(tmp_path):
+    from datetime import date
+    cfg = load_config(write(tmp_path, site_toml(
+        ingest='earliest_date = 1990-01-01\nlatest_date = "2030-12-31"')), check_files=False)
+    assert (cfg.ingest.earliest_date, cfg.ingest.latest_date) == (date(1990, 1, 1),
+                                                                  date(2030, 12, 31))
+
+
 def test_period_accepts_toml_dates_and_strings(tmp_path):
     path = write(tmp_path, site_toml(more='[sites.weather.period]\nstart = 2020-01-01\nend = "2021-06-30"'))
     assert load_config(path, check_files=False).sites[0].weather.period == ("2020-01-01", "2021-06-30")
@@ -280,6 +288,8 @@ def test_period_accepts_toml_dates_and_strings(tmp_path):
         pytest.param({"top": "data_dir = 3"}, "data_dir", "expected str, got int 3", id="wrong-type-top"),
         pytest.param({"files": '"w/*.csv"'}, "sites[0].weather.files", "expected list",
                      id="files-not-a-list"),
+        pytest.param({"ingest": 'earliest_date = "1900-13-01"'}, "ingest.earliest_date",
+                     "'1900-13-01' is not a date in the form YYYY-MM-DD", id="bad-earliest-date"),
         pytest.param({"ingest": 'bad_rows = "maybe"'}, "ingest.bad_rows",
                      "'maybe' is not one of 'reject', 'stop'", id="invalid-choice-bad-rows"),
         pytest.param({"site": 'use = "swimming"'}, "sites[0].use",

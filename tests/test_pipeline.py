@@ -166,3 +166,32 @@ def test_the_ingest_summary_is_kept_beside_the_clean_tables(demo_site):
     assert summary == {k: v for k, v in demo_site.clean.summary.items() if k != "reused"}
     rows = summary["weather"]["rows"]
     assert rows["read"] == sum(v for k, v in rows.items() if k != "read")  # the account balances
+
+
+def test_the_next_days_run_reuses_the_clean_tables_when_nothing_was_late(own_copy, parses):
+    config = load_config(own_copy)
+    site = config.sites[0]
+    first = SitePipeline.of(config, site, run_day=pd.Timestamp("2031-05-01").date()).clean()
+    assert first.summary["dates"] == {"earliest": "1900-01-01", "latest": "2031-05-02",
+                                      "after_latest": 0}
+    parses.clear()
+    later = SitePipeline.of(config, site, run_day=pd.Timestamp("2031-05-02").date()).clean()
+    assert later.reused and parses == []
+
+
+def test_a_run_day_inside_the_record_refuses_what_comes_after_it(own_copy):
+    config = load_config(own_copy)
+    site = config.sites[0]
+    full = SitePipeline.of(config, site, run_day=pd.Timestamp("2031-05-01").date()).clean()
+    end = pd.Timestamp(full.summary["weather"]["end_utc"])
+    day = (end - pd.Timedelta(days=10)).date()
+    cut = SitePipeline.of(config, site, run_day=day).clean()
+    assert not cut.reused and cut.summary["dates"]["after_latest"] > 0
+    rejects = pd.read_csv(SitePipeline.of(config, site).workspace.weather_rejects)
+    late = rejects[rejects["reason"] == "implausible_date"]
+    assert len(late) and late["message"].str.contains("the latest plausible date").all()
+    assert cut.weather.index.max() < pd.Timestamp(day, tz="UTC") + pd.Timedelta(days=2)
+    # back to today: the refused rows come back (the tables of the later day are rebuilt)
+    again = SitePipeline.of(config, site, run_day=pd.Timestamp("2031-05-01").date()).clean()
+    assert not again.reused and again.summary["dates"]["after_latest"] == 0
+    pd.testing.assert_frame_equal(again.weather, full.weather, check_exact=True)

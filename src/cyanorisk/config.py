@@ -21,6 +21,7 @@ import types
 import typing
 import zoneinfo
 from dataclasses import dataclass, field
+from datetime import date, datetime
 from importlib import resources
 from pathlib import Path
 from typing import Any
@@ -46,6 +47,7 @@ from cyanorisk.ingest.quality import (
     OFF_GRID_POLICIES,
 )
 from cyanorisk.ingest.samples import SampleLayout, Taxon
+from cyanorisk.ingest.stamps import EARLIEST_DATE
 from cyanorisk.levels import SCHEMES, Scheme, custom_scheme
 from cyanorisk.levels import scheme as preset_scheme
 from cyanorisk.spec import (
@@ -72,6 +74,11 @@ class IngestSettings:
     bad_rows: str = DEFAULT_BAD_ROWS
     off_grid: str = DEFAULT_OFF_GRID
     duplicates: str = DEFAULT_DUPLICATES
+    earliest_date: date = EARLIEST_DATE
+    """Readings and samples dated before this go to the rejects ledger (``implausible_date``)."""
+    latest_date: date | None = None
+    """Readings and samples dated after this go to the ledger; by default the day after the
+    run."""
 
 
 @dataclass(frozen=True)
@@ -325,8 +332,11 @@ class _Reader:
         root = self.base if self.embedded else (self.base / root_text)
         self.root = root.resolve()
         ing = self.get(raw, "ingest", dict, "", {})
-        self.keys(ing, {"bad_rows", "off_grid", "duplicates"}, "ingest")
+        self.keys(ing, {"bad_rows", "off_grid", "duplicates", "earliest_date", "latest_date"},
+                  "ingest")
         ingest = IngestSettings(
+            earliest_date=self.day(ing, "earliest_date", "ingest") or EARLIEST_DATE,
+            latest_date=self.day(ing, "latest_date", "ingest"),
             bad_rows=self.choice(ing, "bad_rows", BAD_ROW_POLICIES, "ingest", DEFAULT_BAD_ROWS),
             off_grid=self.choice(ing, "off_grid", OFF_GRID_POLICIES, "ingest", DEFAULT_OFF_GRID),
             duplicates=self.choice(ing, "duplicates", DUPLICATE_POLICIES, "ingest",
@@ -575,6 +585,17 @@ class _Reader:
                                f"{where}.alerts.warn_at)" if warn_at else ""))
         except ValueError as exc:
             raise self.fail(f"{where}.model", str(exc)) from None
+
+    def day(self, table: dict, key: str, where: str) -> date | None:
+        """A calendar date written as a TOML date or as 'YYYY-MM-DD'."""
+        value = table.get(key)
+        if value is None or (isinstance(value, date) and not isinstance(value, datetime)):
+            return value
+        try:
+            return date.fromisoformat(str(value))
+        except ValueError:
+            raise self.fail(f"{where}.{key}", f"{value!r} is not a date in the form "
+                                              "YYYY-MM-DD") from None
 
     def _date(self, table: dict, key: str, where: str) -> str | None:
         value = table.get(key)

@@ -23,6 +23,9 @@ OFF_GRID_POLICIES = ("aggregate", "drop")
 """Readings between grid points: combined into their interval, or dropped (ledger)."""
 DUPLICATE_POLICIES = ("last", "first")
 """Conflicting rows for one stamp (or one sample and taxon): which one to keep, in file order."""
+AFTER_LATEST = "the latest plausible date"
+"""Words in the ledger message of a row dated after the latest plausible date (the day after the
+run, by default), so that such rows can be told from those dated too early."""
 DEFAULT_BAD_ROWS = "stop"
 """Stop at the first bad row, naming file, line and column, unless told to reject and go on."""
 DEFAULT_OFF_GRID = "aggregate"

@@ -18,6 +18,7 @@ from __future__ import annotations
 import re
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
+from datetime import date, timedelta
 from pathlib import Path
 
 import numpy as np
@@ -27,6 +28,7 @@ from cyanorisk.ingest.counts import CENSOR_ABOVE, CENSOR_BELOW, EXACT, parse_cou
 from cyanorisk.ingest.dialects import DATE_ORDERS, Table, sniff_table
 from cyanorisk.ingest.lines import Parsing, TextFile, read_table, read_text
 from cyanorisk.ingest.quality import (
+    AFTER_LATEST,
     DEFAULT_BAD_ROWS,
     DEFAULT_DUPLICATES,
     DUPLICATE_POLICIES,
@@ -34,7 +36,16 @@ from cyanorisk.ingest.quality import (
     Ledger,
     RowAccount,
 )
-from cyanorisk.ingest.stamps import distinct, localize, parse_dates, parse_times, to_ns
+from cyanorisk.ingest.stamps import (
+    EARLIEST_DATE,
+    LAST_REPRESENTABLE,
+    day_number,
+    distinct,
+    localize,
+    parse_dates,
+    parse_times,
+    to_ns,
+)
 from cyanorisk.timeofday import minutes_after_midnight, parse_hhmm
 
 CELLS_PER_L_IN_ML = 1000.0
@@ -133,8 +144,9 @@ RECORD_COLUMNS = ["site_id", "sample_id", "sampled_at", "reported_at", "depth_m"
 
 
 def read_samples(paths: str | Path | Sequence[str | Path], layout: SampleLayout, timezone: str, *,
-                 site_id: str | None = None,
-                 bad_rows: str = DEFAULT_BAD_ROWS) -> tuple[pd.DataFrame, SamplesMeta]:
+                 site_id: str | None = None, bad_rows: str = DEFAULT_BAD_ROWS,
+                 earliest: date = EARLIEST_DATE,
+                 latest: date | None = None) -> tuple[pd.DataFrame, SamplesMeta]:
     """Read lab result files into tidy records, one per sample and taxon.
 
     Parameters
@@ -147,6 +159,10 @@ def read_samples(paths: str | Path | Sequence[str | Path], layout: SampleLayout,
         Site of every sample when the layout has no site column.
     bad_rows : {'reject', 'stop'}
         Unreadable rows go to the ledger, or the first one raises.
+    earliest, latest : datetime.date, optional
+        Plausible sampling dates: a sample dated before ``earliest`` or after ``latest`` (the
+        day after the run, in the pipeline) goes to the ledger as ``implausible_date``. A result
+        reported before its sample was taken is kept with the flag ``reported_before_sampled``.
 
     Returns
     -------
@@ -156,9 +172,9 @@ def read_samples(paths: str | Path | Sequence[str | Path], layout: SampleLayout,
         Row accounting (balanced), the rejects ledger, assumptions and flag counts.
     """
     paths = [Path(p) for p in ([paths] if isinstance(paths, (str, Path)) else paths)]
-    files = [parse_sample_file(p, layout, timezone, site_id=site_id, bad_rows=bad_rows)
-             for p in paths]
-    return assemble_samples(files, layout)
+    files = [parse_sample_file(p, layout, timezone, site_id=site_id, bad_rows=bad_rows,
+                               earliest=earliest) for p in paths]
+    return assemble_samples(files, layout, latest=latest, timezone=timezone)
 
 
 @dataclass
@@ -175,21 +191,27 @@ class SampleFile:
 
 
 def parse_sample_file(path: str | Path, layout: SampleLayout, timezone: str, *,
-                      site_id: str | None = None, bad_rows: str = DEFAULT_BAD_ROWS) -> SampleFile:
-    """Read one lab file into records (see :func:`read_samples`)."""
+                      site_id: str | None = None, bad_rows: str = DEFAULT_BAD_ROWS,
+                      earliest: date = EARLIEST_DATE) -> SampleFile:
+    """Read one lab file into records (see :func:`read_samples`); dates before ``earliest`` go
+    to the ledger."""
     ledger = Ledger()
     path = Path(path)
-    records, n_rows, said = _read_file(path, layout, timezone, site_id, bad_rows, ledger)
+    window = (day_number(earliest), day_number(LAST_REPRESENTABLE))
+    records, n_rows, said = _read_file(path, layout, timezone, site_id, bad_rows, ledger, window)
     return SampleFile(path, records, n_rows, ledger.frame(), [f"{path.name}: {s}" for s in said])
 
 
-def assemble_samples(files: Sequence[SampleFile],
-                     layout: SampleLayout) -> tuple[pd.DataFrame, SamplesMeta]:
-    """Put parsed lab files together: repeated records merged or resolved by policy, the row
-    account proved. See :func:`read_samples`."""
+def assemble_samples(files: Sequence[SampleFile], layout: SampleLayout, *,
+                     latest: date | None = None,
+                     timezone: str = "UTC") -> tuple[pd.DataFrame, SamplesMeta]:
+    """Put parsed lab files together: samples dated after ``latest`` (a local date in
+    ``timezone``) to the ledger, repeated records merged or resolved by policy, the row account
+    proved. See :func:`read_samples`."""
     ledger = Ledger([f.rejects for f in files if len(f.rejects)])
     parts = [f.records for f in files]
     data = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame(columns=RECORD_COLUMNS)
+    data = _keep_before(data, latest, timezone, ledger, layout.encoding)
     rejected = sum(len(p) for p in ledger.parts)
     before = _raw_rows(data)
     data, conflicting = _deduplicate(data, layout.duplicates, ledger, layout.encoding)
@@ -213,7 +235,7 @@ def _raw_rows(data: pd.DataFrame) -> set[tuple[str, int]]:
 
 
 def _read_file(path: Path, layout: SampleLayout, timezone: str, site_id: str | None, bad_rows: str,
-               ledger: Ledger) -> tuple[pd.DataFrame, int, list[str]]:
+               ledger: Ledger, window: tuple[int, int]) -> tuple[pd.DataFrame, int, list[str]]:
     text = read_text(path, layout.encoding)
     table = sniff_sheet(text, layout)
     header = table.header
@@ -225,7 +247,7 @@ def _read_file(path: Path, layout: SampleLayout, timezone: str, site_id: str | N
     for line, count in zip(raw.bad_lines, raw.bad_counts, strict=True):
         ledger.add(str(path), np.array([line]), "", [text.line(int(line))], "field_count",
                    f"expected {len(header)} fields as in the header, found {count}")
-    sampled, reported, said = _sample_times(cols, layout, timezone, n, problems)
+    sampled, reported, said = _sample_times(cols, layout, timezone, n, problems, window)
     if layout.shape == "long":
         records = _long_records(cols, layout, table.decimal, header, n, problems)
     else:
@@ -263,9 +285,10 @@ def _read_file(path: Path, layout: SampleLayout, timezone: str, site_id: str | N
     records["comment"] = cols[layout.comment_column][r] if layout.comment_column else ""
     records["file"] = str(path)
     records["line"] = raw.line_numbers[r]
-    if said.get("time_assumed") is not None:
-        assumed = said.pop("time_assumed")[r]
-        records.loc[assumed, "flag"] = _join_flag(records.loc[assumed, "flag"], "time_assumed")
+    for flag in ("time_assumed", "reported_before_sampled"):
+        if said.get(flag) is not None:
+            marked = said.pop(flag)[r]
+            records.loc[marked, "flag"] = _join_flag(records.loc[marked, "flag"], flag)
     return records[RECORD_COLUMNS + ["_row"]], n + len(raw.bad_lines), list(said.values())
 
 
@@ -287,6 +310,10 @@ def sniff_sheet(text: TextFile, layout: SampleLayout) -> Table:
     return table
 
 
+def _day_text(day: int) -> str:
+    return str(date(1970, 1, 1) + timedelta(days=int(day)))
+
+
 def _strings(col) -> np.ndarray:
     codes, uniques = distinct(col)
     return np.asarray(uniques, dtype=object)[codes] if len(codes) else np.array([], dtype=object)
@@ -303,9 +330,10 @@ def _join_flag(flags: pd.Series, new: str) -> pd.Series:
     return flags.where(flags == "", flags + ",").astype(object) + new
 
 
-def _sample_times(cols: dict, layout: SampleLayout, timezone: str, n: int,
-                  problems: list) -> tuple[pd.DatetimeIndex, pd.DatetimeIndex, dict]:
-    """Sampling and reporting instants in UTC; problems appended per row."""
+def _sample_times(cols: dict, layout: SampleLayout, timezone: str, n: int, problems: list,
+                  window: tuple[int, int]) -> tuple[pd.DatetimeIndex, pd.DatetimeIndex, dict]:
+    """Sampling and reporting instants in UTC; problems appended per row. Days outside
+    ``window`` (first and last plausible day numbers) are problems, never read as instants."""
     said: dict = {}
     date_text = cols[layout.sampled_date_column]
     codes, uniques = np.unique(date_text.astype(str), return_inverse=True)
@@ -316,6 +344,13 @@ def _sample_times(cols: dict, layout: SampleLayout, timezone: str, n: int,
     for i in np.flatnonzero(np.isnan(days)):
         problems.append((int(i), layout.sampled_date_column, "bad_date",
                          f"'{date_text[i]}' is not a date ({parsed.order})"))
+    far = ~np.isnan(days) & ((days < window[0]) | (days > window[1]))
+    for i in np.flatnonzero(far):
+        problems.append((int(i), layout.sampled_date_column, "implausible_date",
+                         f"'{date_text[i]}' is not a plausible sampling date: outside "
+                         f"{_day_text(window[0])} to {_day_text(window[1])} ([ingest] "
+                         "earliest_date, and the day after the run)"))
+    days = np.where(far, np.nan, days)
     if layout.sampled_time_column:
         t_text = cols[layout.sampled_time_column]
         blank = np.array([not str(x).strip() for x in t_text])
@@ -343,6 +378,13 @@ def _sample_times(cols: dict, layout: SampleLayout, timezone: str, n: int,
         for i in np.flatnonzero(np.isnan(r_days) & ~blank):
             problems.append((int(i), layout.reported_date_column, "bad_date",
                              f"'{r_text[i]}' is not a date ({parsed.order})"))
+        r_far = ~np.isnan(r_days) & ((r_days < window[0]) | (r_days > window[1]))
+        for i in np.flatnonzero(r_far):
+            problems.append((int(i), layout.reported_date_column, "implausible_date",
+                             f"'{r_text[i]}' is not a plausible reporting date: outside "
+                             f"{_day_text(window[0])} to {_day_text(window[1])}"))
+        r_days = np.where(r_far, np.nan, r_days)
+        said["reported_before_sampled"] = r_days < np.floor(days)
         midnight = np.zeros(n, dtype=np.int64)  # a result counts from the start of its day
         r_utc, _, _ = localize(to_ns(r_days, midnight), timezone)
         reported = pd.DatetimeIndex(r_utc.view("datetime64[ns]")).tz_localize("UTC")
@@ -440,6 +482,26 @@ def _wide_records(cols: dict, layout: SampleLayout, decimal: str, header: list[s
     empty_row = ~reported.groupby(frame["_row"]).transform("any")
     frame.loc[empty_row & first_of_row, "taxon"] = ""
     return frame[reported | (empty_row & first_of_row)]
+
+
+def _keep_before(data: pd.DataFrame, latest: date | None, timezone: str, ledger: Ledger,
+                 encoding: str) -> pd.DataFrame:
+    """Records sampled after the local day ``latest`` go to the ledger, one entry per raw row:
+    a sample cannot have been taken after the run (a typing error, often the year)."""
+    if latest is None or data.empty:
+        return data
+    limit = pd.Timestamp(latest + timedelta(days=1)).tz_localize(timezone).tz_convert("UTC")
+    late = (data["sampled_at"] >= limit).to_numpy()
+    if not late.any():
+        return data
+    rows = data.loc[late, ["file", "line"]].drop_duplicates()
+    texts: dict[str, TextFile] = {}
+    for file, line in rows.itertuples(index=False):
+        text = texts.setdefault(file, read_text(Path(file), encoding))
+        ledger.add(file, np.array([line]), "", [text.line(int(line))], "implausible_date",
+                   f"sampled after {latest}, {AFTER_LATEST} (by default the day after the run): "
+                   "a typing error, often in the year")
+    return data[~late]
 
 
 def _deduplicate(data: pd.DataFrame, policy: str, ledger: Ledger,

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import re
 from dataclasses import dataclass
+from datetime import date
 
 import numpy as np
 import pandas as pd
@@ -22,6 +23,24 @@ from cyanorisk.ingest.dialects import sniff_date_order
 
 NS_PER_DAY = 86_400 * 10**9
 NAT = np.iinfo(np.int64).min
+EARLIEST_DATE = date(1900, 1, 1)
+"""Dates before this are not plausible for a station log or a lab sheet (configurable:
+``[ingest] earliest_date``)."""
+LAST_REPRESENTABLE = date(2261, 12, 31)
+"""The last day nanosecond time stamps can hold (numpy and pandas: up to 2262-04-11)."""
+_EPOCH = date(1970, 1, 1)
+
+
+def day_number(d: date) -> int:
+    """Days since 1970-01-01 of a date."""
+    return (d - _EPOCH).days
+
+
+def year_of_text(values: list[str]) -> np.ndarray:
+    """The four-digit year written in each text, NaN where there is none (for saying why an
+    unreadable stamp was refused)."""
+    found = pc.extract_regex(pa.array(values, pa.string()), r"(?:^|\D)(?P<y>\d{4})(?:\D|$)")
+    return pc.cast(pc.struct_field(found, "y"), pa.float64()).to_numpy(zero_copy_only=False)
 
 _DATE = re.compile(r"^\s*(?P<first>\d{1,4})[./-](?P<second>\d{1,2})[./-](?P<third>\d{1,4})\s*$")
 _TIME = re.compile(r"^\s*(\d{1,2}):(\d{2})(?::(\d{2})(?:\.\d+)?)?\s*$")
@@ -64,13 +83,17 @@ def parse_dates(uniques: list[str], order: str | None, coerce_year: int | None =
     parts = np.column_stack([
         pc.cast(pc.struct_field(fields, k), pa.float64()).to_numpy(zero_copy_only=False)
         for k in range(3)]) if uniques else np.zeros((0, 3))
+    widths = np.column_stack([
+        pc.fill_null(pc.utf8_length(pc.struct_field(fields, k)), 0).to_numpy(zero_copy_only=False)
+        for k in range(3)]) if uniques else np.zeros((0, 3))
     note = None
     if order is None:
         ok = ~np.isnan(parts[:, 0])
         order, note = sniff_date_order(parts[ok, 0], parts[ok, 1], parts[ok, 2])
     idx = {"dmy": (2, 1, 0), "mdy": (2, 0, 1), "ymd": (0, 1, 2)}[order]
     year, month, day = (parts[:, k] for k in idx)
-    year = np.where(year < 100, year + np.where(year < 70, 2000, 1900), year)
+    two_digit = widths[:, idx[0]] <= 2  # '24' is 2024; '0001' is the year 1, not 2001
+    year = np.where(two_digit, year + np.where(year < 70, 2000, 1900), year)
     if coerce_year is not None:
         year = np.where(np.isnan(year), np.nan, coerce_year)
     valid = ~np.isnan(year) & (month >= 1) & (month <= 12) & (day >= 1)
@@ -168,12 +191,18 @@ def _parse_iso(iso: pa.Array) -> tuple[np.ndarray, np.ndarray]:
 
 
 def _ns(t: pd.Series | pd.DatetimeIndex) -> np.ndarray:
-    """Nanoseconds since the epoch, ``NAT`` for NaT, whatever the resolution pandas picked."""
+    """Nanoseconds since the epoch, ``NAT`` for NaT and for instants nanoseconds cannot hold
+    (pandas may parse the year 1 or 2999 at a coarser resolution), whatever the resolution."""
     if isinstance(t, pd.Series):
         t = pd.DatetimeIndex(t)
     if t.tz is not None:
         t = t.tz_convert("UTC").tz_localize(None)
-    return t.as_unit("ns").asi8.copy()
+    seconds = t.as_unit("s").asi8
+    lo, hi = (day_number(date(1678, 1, 1)) * 86_400, (day_number(LAST_REPRESENTABLE) + 1) * 86_400)
+    fits = (seconds != NAT) & (seconds >= lo) & (seconds < hi)
+    out = np.full(len(t), NAT, dtype=np.int64)
+    out[fits] = t[fits].as_unit("ns").asi8
+    return out
 
 
 @dataclass
@@ -193,9 +222,12 @@ class DateTimeParse:
 
 
 def to_ns(days: np.ndarray, tod: np.ndarray) -> np.ndarray:
-    """Naive nanoseconds since the epoch from days (NaN: bad) and time of day (negative: bad)."""
-    bad = np.isnan(days) | (tod < 0)
-    return np.where(bad, NAT, np.nan_to_num(days).astype(np.int64) * NS_PER_DAY + tod)
+    """Naive nanoseconds since the epoch from days (NaN: bad) and time of day (negative: bad);
+    ``NAT`` for days that nanosecond stamps cannot hold (never an overflow into another year)."""
+    lo, hi = day_number(date(1678, 1, 1)), day_number(LAST_REPRESENTABLE)
+    bad = np.isnan(days) | (tod < 0) | (days < lo) | (days > hi)
+    safe = np.where(bad, 0, np.nan_to_num(days)).astype(np.int64)
+    return np.where(bad, NAT, safe * NS_PER_DAY + np.where(bad, 0, tod))
 
 
 def parse_date_time(date: pa.Array, time: pa.Array | None, order: str | None,

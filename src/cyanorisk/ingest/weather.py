@@ -14,6 +14,7 @@ from __future__ import annotations
 
 from collections.abc import Iterable, Sequence
 from dataclasses import asdict, dataclass, field
+from datetime import date, timedelta
 from pathlib import Path
 
 import numpy as np
@@ -33,6 +34,7 @@ from cyanorisk.ingest.dialects import (
 )
 from cyanorisk.ingest.lines import Parsing, RawTable, TextFile, read_table, read_text
 from cyanorisk.ingest.quality import (
+    AFTER_LATEST,
     BAD_ROW_POLICIES,
     DEFAULT_BAD_ROWS,
     DEFAULT_DUPLICATES,
@@ -47,11 +49,16 @@ from cyanorisk.ingest.quality import (
 )
 from cyanorisk.ingest.regular import Rows
 from cyanorisk.ingest.stamps import (
+    EARLIEST_DATE,
+    LAST_REPRESENTABLE,
     NAT,
+    NS_PER_DAY,
+    day_number,
     distinct,
     localize,
     parse_date_time,
     parse_timestamps,
+    year_of_text,
 )
 from cyanorisk.units import to_canonical
 from cyanorisk.variables import WEATHER_VARIABLES
@@ -120,6 +127,8 @@ def read_weather(
     off_grid: str = DEFAULT_OFF_GRID,
     duplicates: str = DEFAULT_DUPLICATES,
     bad_rows: str = DEFAULT_BAD_ROWS,
+    earliest: date = EARLIEST_DATE,
+    latest: date | None = None,
 ) -> tuple[pd.DataFrame, WeatherMeta]:
     """Read, clean and regularise weather-station logs.
 
@@ -145,6 +154,9 @@ def read_weather(
         Which of several conflicting rows with one stamp to keep, in file order.
     bad_rows : {'reject', 'stop'}
         Put unparseable rows in the ledger and go on, or stop at the first with an error.
+    earliest, latest : datetime.date, optional
+        Plausible dates: stamps before ``earliest`` or after ``latest`` (the day after the run,
+        in the pipeline) go to the ledger as ``implausible_date``.
 
     Returns
     -------
@@ -164,9 +176,10 @@ def read_weather(
         raise ValueError("no weather files given")
     _check_policy("bad_rows", bad_rows, BAD_ROW_POLICIES)
     dialect = dialect or WeatherDialect()
-    files = [parse_weather_file(p, dialect, timezone, interval, bad_rows=bad_rows) for p in paths]
+    files = [parse_weather_file(p, dialect, timezone, interval, bad_rows=bad_rows,
+                                earliest=earliest) for p in paths]
     return assemble_weather(files, interval, timezone, period=period, off_grid=off_grid,
-                            duplicates=duplicates, encoding=dialect.encoding)
+                            duplicates=duplicates, encoding=dialect.encoding, latest=latest)
 
 
 def _check_policy(name: str, value: str, allowed: tuple[str, ...]) -> None:
@@ -208,8 +221,11 @@ class WeatherFile:
 
 
 def parse_weather_file(path: str | Path, dialect: WeatherDialect | None, timezone: str,
-                       interval: str | pd.Timedelta, *, bad_rows: str = DEFAULT_BAD_ROWS) -> WeatherFile:
+                       interval: str | pd.Timedelta, *, bad_rows: str = DEFAULT_BAD_ROWS,
+                       earliest: date = EARLIEST_DATE) -> WeatherFile:
     """Parse one weather file: layout, stamps to UTC, values in canonical units, row problems.
+    Rows dated before ``earliest`` (or beyond what time stamps can hold) go to the ledger as
+    ``implausible_date``, never misread as another year.
 
     Raises
     ------
@@ -219,14 +235,15 @@ def parse_weather_file(path: str | Path, dialect: WeatherDialect | None, timezon
     dialect = dialect or WeatherDialect()
     ledger = Ledger()
     rows, report, n_amb, n_non = _parse_file(Path(path), 0, dialect, timezone,
-                                             int(pd.Timedelta(interval).value), bad_rows, ledger)
+                                             int(pd.Timedelta(interval).value), bad_rows, ledger,
+                                             earliest)
     return WeatherFile(Path(path), rows, ledger.frame(), report, n_amb, n_non)
 
 
 def assemble_weather(files: Sequence[WeatherFile], interval: str | pd.Timedelta, timezone: str, *,
                      period: tuple | None = None, off_grid: str = DEFAULT_OFF_GRID,
-                     duplicates: str = DEFAULT_DUPLICATES,
-                     encoding: str = "utf-8") -> tuple[pd.DataFrame, WeatherMeta]:
+                     duplicates: str = DEFAULT_DUPLICATES, encoding: str = "utf-8",
+                     latest: date | None = None) -> tuple[pd.DataFrame, WeatherMeta]:
     """Put parsed files together on the regular grid: period, ranges, duplicates across files,
     off-grid readings, short gaps, flags; the row account is proved before anything is returned.
     See :func:`read_weather`. The files' rows are consumed (range checks write into them)."""
@@ -242,6 +259,7 @@ def assemble_weather(files: Sequence[WeatherFile], interval: str | pd.Timedelta,
     account = RowAccount(read=sum(f.report.rows_read for f in files))
     account.rejected = sum(len(p) for p in ledger.parts)
     rows = _keep_period(rows, period, timezone, paths, ledger, account)
+    rows = _keep_before(rows, latest, timezone, paths, ledger, account)
     _range_check(rows)
     order, n_ident, n_conf = regular.deduplicate(rows, duplicates, ledger, paths)
     account.duplicates_identical, account.duplicates_conflicting = n_ident, n_conf
@@ -263,7 +281,7 @@ def assemble_weather(files: Sequence[WeatherFile], interval: str | pd.Timedelta,
 
 
 def _parse_file(path: Path, k: int, dialect: WeatherDialect, timezone: str, step_ns: int,
-                bad_rows: str, ledger: Ledger) -> tuple[Rows, FileReport, int, int]:
+                bad_rows: str, ledger: Ledger, earliest: date) -> tuple[Rows, FileReport, int, int]:
     try:
         text = read_text(path, dialect.encoding)
     except IngestError as exc:
@@ -282,7 +300,7 @@ def _parse_file(path: Path, k: int, dialect: WeatherDialect, timezone: str, step
     problems.add_lines(raw.bad_lines, "field_count", [
         f"expected {len(raw.header)} {sep_name}-separated fields as in the header, found {c}"
         for c in raw.bad_counts])
-    t, aware, notes = _parse_stamps(raw, d, problems)
+    t, aware, notes = _parse_stamps(raw, d, problems, earliest)
     values, states = {}, {}
     for col, spec in plan.items():
         values[spec.variable], states[spec.variable] = _parse_values(raw, col, spec, d, problems)
@@ -370,13 +388,31 @@ class _Problems:
             ledger.add(self.path, lines, "", [text.line(int(n)) for n in lines], reason, messages)
 
 
-def _parse_stamps(raw: RawTable, d: WeatherDialect,
-                  problems: _Problems) -> tuple[np.ndarray, np.ndarray, list[str]]:
+def _add_implausible(problems: _Problems, early: np.ndarray, far: np.ndarray, column: str,
+                     values: pa.Array, earliest: date) -> None:
+    """Rows dated before ``earliest``, or beyond the last day time stamps can hold."""
+    problems.add(early, column, "implausible_date", values,
+                 f"'{{raw}}' is not a plausible date for this record: before {earliest}, the "
+                 "earliest date allowed ([ingest] earliest_date)")
+    problems.add(far, column, "implausible_date", values,
+                 f"'{{raw}}' is not a plausible date for this record: after "
+                 f"{LAST_REPRESENTABLE}, the last day time stamps can hold")
+
+
+def _parse_stamps(raw: RawTable, d: WeatherDialect, problems: _Problems,
+                  earliest: date) -> tuple[np.ndarray, np.ndarray, list[str]]:
     notes: list[str] = []
     n = raw.n_rows
+    lo = day_number(earliest) * NS_PER_DAY
     if d.timestamp_column:
         col = raw.columns[d.timestamp_column]
         t, aware, _, note = parse_timestamps(col, d.date_order, d.coerce_year)
+        codes, uniques = distinct(col)
+        year = year_of_text(uniques)[codes] if len(codes) else np.zeros(0)
+        unreadable = (t == NAT) & ~np.isnan(year)
+        _add_implausible(problems, (unreadable & (year < earliest.year)) | ((t != NAT) & (t < lo)),
+                         unreadable & (year > LAST_REPRESENTABLE.year), d.timestamp_column, col,
+                         earliest)
         problems.add(t == NAT, d.timestamp_column, "bad_timestamp", col,
                      "'{raw}' is not a date and time; expected e.g. 2024-01-31T09:30+10:00 or "
                      "31/01/2024 09:30")
@@ -387,6 +423,11 @@ def _parse_stamps(raw: RawTable, d: WeatherDialect,
     if parsed.note:
         notes.append(parsed.note)
     form = {"dmy": "DD/MM/YYYY", "mdy": "MM/DD/YYYY", "ymd": "YYYY-MM-DD"}[parsed.order]
+    days = parsed.days
+    known = ~np.isnan(days)
+    _add_implausible(problems, known & (days < day_number(earliest)),
+                     known & (days > day_number(LAST_REPRESENTABLE)), d.date_column, date_col,
+                     earliest)
     problems.add(np.isnan(parsed.days), d.date_column, "bad_date", date_col,
                  f"'{{raw}}' is not a date in the form {form}")
     if time_col is not None:
@@ -493,6 +534,24 @@ def _keep_period(rows: Rows, period: tuple | None, timezone: str, paths: list[Pa
                    f"outside the requested period {_period_text(period)}")
     account.rejected += int(out.sum())
     return rows.take(inside)
+
+
+def _keep_before(rows: Rows, latest: date | None, timezone: str, paths: list[Path],
+                 ledger: Ledger, account: RowAccount) -> Rows:
+    """Rows stamped after the local day ``latest`` go to the ledger: a logger clock or a
+    typing error."""
+    if latest is None:
+        return rows
+    limit = (pd.Timestamp(latest + timedelta(days=1)).tz_localize(timezone)
+             .tz_convert("UTC").tz_localize(None).value)
+    late = rows.t >= limit
+    for k in np.unique(rows.file[late]):
+        sel = late & (rows.file == k)
+        ledger.add(str(paths[k]), rows.line[sel], "", [""] * int(sel.sum()), "implausible_date",
+                   f"dated after {latest}, {AFTER_LATEST} (by default the day after the run): "
+                   "a logger clock or typing error")
+    account.rejected += int(late.sum())
+    return rows.take(~late)
 
 
 def _with_raw_lines(rejects: pd.DataFrame, encoding: str) -> pd.DataFrame:

@@ -16,6 +16,7 @@ import hashlib
 import json
 from collections.abc import Callable
 from dataclasses import asdict, dataclass
+from datetime import date
 from pathlib import Path
 from typing import Any
 
@@ -23,7 +24,7 @@ import pandas as pd
 
 from cyanorisk.atomic import write_group
 from cyanorisk.config import Site
-from cyanorisk.ingest.quality import LEDGER_COLUMNS
+from cyanorisk.ingest.quality import AFTER_LATEST, LEDGER_COLUMNS
 from cyanorisk.ingest.samples import (
     SampleFile,
     assemble_samples,
@@ -82,29 +83,33 @@ def _key(*parts: Any) -> str:
 def weather_settings(site: Site) -> dict[str, Any]:
     """Everything besides a weather file's bytes that shapes its parsed rows."""
     return {"dialect": asdict(site.weather.parsing), "timezone": site.timezone,
-            "interval": str(site.interval), "bad_rows": site.ingest.bad_rows}
+            "interval": str(site.interval), "bad_rows": site.ingest.bad_rows,
+            "earliest": str(site.ingest.earliest_date)}
 
 
 def sample_settings(site: Site) -> dict[str, Any]:
     """Everything besides a lab file's bytes that shapes its parsed records."""
     layout = site.samples.parsing if site.samples else None
     return {"layout": asdict(layout) if layout else None, "timezone": site.timezone,
-            "site_id": site.id, "bad_rows": site.ingest.bad_rows}
+            "site_id": site.id, "bad_rows": site.ingest.bad_rows,
+            "earliest": str(site.ingest.earliest_date)}
 
 
 def inputs_key(site: Site, digests: dict[str, str]) -> str:
-    """The key of a site's clean tables: its raw files' hashes and the settings that shape them."""
+    """The key of a site's clean tables: its raw files' hashes and the settings that shape them.
+    The run's latest plausible date is not part of it (see :func:`_still_plausible`)."""
     taxa = {k: asdict(v) for k, v in site.samples.taxa.items()} if site.samples else None
     return _key(__version__, digests, weather_settings(site), sample_settings(site),
                 taxa, asdict(site.ingest), site.weather.period)
 
 
 def clean_site(site: Site, ws: SiteWorkspace, digests: dict[str, str], *,
-               reuse: bool = True) -> CleanData:
-    """The site's clean data: read back when nothing changed, else ingested and written."""
+               reuse: bool = True, latest: date | None = None) -> CleanData:
+    """The site's clean data: read back when nothing changed, else ingested and written.
+    Readings and samples dated after ``latest`` go to the rejects ledger."""
     key = inputs_key(site, digests)
     if reuse:
-        done = _read_back(site, ws, key)
+        done = _read_back(site, ws, key, latest)
         if done is not None:
             return done
     used: set[Path] = set()
@@ -113,15 +118,17 @@ def clean_site(site: Site, ws: SiteWorkspace, digests: dict[str, str], *,
     weather, wmeta = assemble_weather(
         weather_files, site.interval, site.timezone, period=site.weather.period,
         off_grid=site.ingest.off_grid, duplicates=site.ingest.duplicates,
-        encoding=site.weather.parsing.encoding)
+        encoding=site.weather.parsing.encoding, latest=latest)
     records = totals = smeta = None
     if site.samples is not None:
         sample_files = [_sample_file(site, ws, Path(p), digests[str(p)], used)
                         for p in site.samples.files]
-        records, smeta = assemble_samples(sample_files, site.samples.parsing)
+        records, smeta = assemble_samples(sample_files, site.samples.parsing, latest=latest,
+                                          timezone=site.timezone)
         totals = sample_totals(records, site.samples.taxa)
         totals["outside_weather"] = _outside(totals, wmeta)
     summary = ingest_summary(site, wmeta, smeta, totals, key)
+    summary["dates"] = _dates(site, latest, wmeta, smeta)
     writers = {ws.weather: lambda tmp: weather.to_parquet(tmp, engine="pyarrow"),
                ws.weather_rejects: lambda tmp: wmeta.rejects.to_csv(tmp, index=False)}
     if smeta is not None:
@@ -137,7 +144,28 @@ def clean_site(site: Site, ws: SiteWorkspace, digests: dict[str, str], *,
                      records=records)
 
 
-def _read_back(site: Site, ws: SiteWorkspace, key: str) -> CleanData | None:
+def _dates(site: Site, latest: date | None, weather: WeatherMeta, samples) -> dict[str, Any]:
+    """The plausible window this ingest used and how many rows fell after its end."""
+    late = sum(int(r["message"].str.contains(AFTER_LATEST, regex=False).sum())
+               for r in (weather.rejects, samples.rejects if samples is not None else None)
+               if r is not None and len(r))
+    return {"earliest": str(site.ingest.earliest_date),
+            "latest": str(latest) if latest else None, "after_latest": late}
+
+
+def _still_plausible(summary: dict, latest: date | None) -> bool:
+    """Whether clean tables made with one latest date hold for this one: the same date, or a
+    later one when no row was refused for being late then (so none would be kept now)."""
+    dates = summary.get("dates")
+    if not isinstance(dates, dict) or "after_latest" not in dates:
+        return False
+    then = date.fromisoformat(dates["latest"]) if dates.get("latest") else date.max
+    now = latest or date.max
+    return now == then or (now > then and dates["after_latest"] == 0)
+
+
+def _read_back(site: Site, ws: SiteWorkspace, key: str,
+               latest: date | None = None) -> CleanData | None:
     needed = [ws.ingest_summary, ws.weather] + ([ws.sample_totals] if site.samples else [])
     if not all(p.exists() for p in needed):
         return None
@@ -145,7 +173,8 @@ def _read_back(site: Site, ws: SiteWorkspace, key: str) -> CleanData | None:
         summary = json.loads(ws.ingest_summary.read_text(encoding="utf-8"))
     except (OSError, ValueError):
         return None
-    if not isinstance(summary, dict) or summary.get("inputs") != key:
+    if not isinstance(summary, dict) or summary.get("inputs") != key \
+            or not _still_plausible(summary, latest):
         return None
     totals = pd.read_parquet(ws.sample_totals) if site.samples else empty_totals()
     return CleanData(pd.read_parquet(ws.weather), totals,
@@ -184,7 +213,8 @@ def _weather_file(site: Site, ws: SiteWorkspace, path: Path, digest: str,
     """One weather file's parsed rows, from the cache when its bytes were parsed before."""
     def parse() -> tuple[WeatherFile, pd.DataFrame, dict]:
         parsed = parse_weather_file(path, site.weather.parsing, site.timezone, site.interval,
-                                    bad_rows=site.ingest.bad_rows)
+                                    bad_rows=site.ingest.bad_rows,
+                                    earliest=site.ingest.earliest_date)
         return parsed, parsed.to_frame(), {
             "report": asdict(parsed.report), "rejects": parsed.rejects.to_dict("records"),
             "n_ambiguous": parsed.n_ambiguous, "n_nonexistent": parsed.n_nonexistent}
@@ -202,7 +232,8 @@ def _sample_file(site: Site, ws: SiteWorkspace, path: Path, digest: str,
     """One lab file's parsed records, from the cache when its bytes were parsed before."""
     def parse() -> tuple[SampleFile, pd.DataFrame, dict]:
         parsed = parse_sample_file(path, site.samples.parsing, site.timezone, site_id=site.id,
-                                   bad_rows=site.ingest.bad_rows)
+                                   bad_rows=site.ingest.bad_rows,
+                                   earliest=site.ingest.earliest_date)
         return parsed, parsed.records, {"rows_read": parsed.rows_read, "notes": parsed.notes,
                                         "rejects": parsed.rejects.to_dict("records")}
 

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass
+from datetime import date, timedelta
 from pathlib import Path
 
 import numpy as np
@@ -57,20 +58,25 @@ class SitePipeline:
         Where its files are.
     config_path : str
         The configuration's name, for hints in messages.
+    run_day : datetime.date, optional
+        The day of this run (by default today, by this machine's clock): readings and samples
+        dated after the day after it are not plausible (``[ingest] latest_date`` overrides).
     """
 
-    def __init__(self, site: Site, workspace: SiteWorkspace, config_path: str = "") -> None:
+    def __init__(self, site: Site, workspace: SiteWorkspace, config_path: str = "",
+                 run_day: date | None = None) -> None:
         self.site = site
         self.workspace = workspace
         self.config_path = config_path
+        self.run_day = run_day or date.today()
         self._digests: dict[str, str] | None = None
         self._clean: CleanData | None = None
         self._thresholds: Thresholds | None = None
 
     @classmethod
-    def of(cls, config: Config, site: Site) -> SitePipeline:
+    def of(cls, config: Config, site: Site, run_day: date | None = None) -> SitePipeline:
         """The pipeline of a configured site."""
-        return cls(site, SiteWorkspace.of(config, site.id), config.path)
+        return cls(site, SiteWorkspace.of(config, site.id), config.path, run_day)
 
     @property
     def spec(self) -> SiteSpec:
@@ -128,7 +134,9 @@ class SitePipeline:
         """The clean tables: reused while the raw files and their settings are unchanged,
         otherwise ingested (each raw file parsed again only if its bytes changed) and written."""
         if self._clean is None or not reuse:
-            self._clean = clean_site(self.site, self.workspace, self.digests(), reuse=reuse)
+            latest = self.site.ingest.latest_date or self.run_day + timedelta(days=1)
+            self._clean = clean_site(self.site, self.workspace, self.digests(), reuse=reuse,
+                                     latest=latest)
         return self._clean
 
     # 2. training table -------------------------------------------------------------------------

@@ -24,6 +24,7 @@ import smtplib
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass, field
+from datetime import date
 from email.message import EmailMessage
 from pathlib import Path
 from typing import Any
@@ -194,9 +195,10 @@ def _issue(config: Config, pipeline: SitePipeline, store: Store, as_of: str, run
 
 
 def run_site(config: Config, site: Site, store: Store, as_of: str, run_id: int,
-             clock: Clock) -> SiteOutcome:
-    """Assess one site for one day, unless the same inputs were already reported."""
-    pipeline = SitePipeline.of(config, site)
+             clock: Clock, run_day: date | None = None) -> SiteOutcome:
+    """Assess one site for one day, unless the same inputs were already reported.
+    ``run_day`` is the day of the run by the service's clock (see :class:`SitePipeline`)."""
+    pipeline = SitePipeline.of(config, site, run_day)
     previous = store.latest_report(site.id, as_of)
     inputs: dict[str, Any] = {}
     try:
@@ -242,7 +244,9 @@ def run_daily(as_of: str | pd.Timestamp, config: Config, *, clock: Clock,
             now = clock()
             store.close_interrupted_runs(now)  # we hold the lock: a run still 'running' crashed
             run_id = store.start_run(day, now)
-            outcomes = [run_site(config, site, store, day, run_id, clock) for site in config.sites]
+            today = pd.Timestamp(now).date()
+            outcomes = [run_site(config, site, store, day, run_id, clock, today)
+                        for site in config.sites]
             status = "partial" if any(o.action == "failed" for o in outcomes) else "ok"
             errors = "; ".join(f"{o.site_id}: {o.reason}" for o in outcomes if o.action == "failed")
             store.end_run(run_id, clock(), status, errors or None)
