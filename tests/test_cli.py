@@ -229,7 +229,7 @@ def test_check_validates_configuration_and_file_layout(tmp_path, capsys):
     assert main(["check", "--config", str(config)]) == 0
     out = capsys.readouterr().out
     assert f"Lake {SITE} ({SITE}): 1 weather file(s), dialect 'aws', zone Australia/Melbourne" in out
-    assert "aws.txt: 2 variable column(s) (layout as declared)" in out
+    assert "aws.txt: 2 variable column(s) (stamps assumed to mark the start of the interval" in out
     assert out.rstrip().endswith(f"{config}: configuration is valid")
     assert not (tmp_path / "work").exists()  # check writes nothing
 

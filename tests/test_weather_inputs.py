@@ -424,7 +424,8 @@ def test_read_weather_end_of_day_2400(name):
     # 24:00 ends a day and is the same instant as 00:00 of the next (ISO 8601:2000 section 5.3.2;
     # ISO 8601-1:2019/Amd 1:2022). '31/12/2023 24:00' is 2024-01-01 00:00, across the year end;
     # the file also has that instant as '01/01/2024 00:00' with the same value: one merged row.
-    data, meta = _read(name)
+    # Declared start-of-interval here, to test the instant alone (24:00 alone means 'end').
+    data, meta = _read(name, WeatherDialect(stamp_marks="start"))
     pd.testing.assert_index_equal(data.index, _utc("2023-12-31 23:00", "2023-12-31 23:30",
                                                    "2024-01-01 00:00", "2024-01-01 00:30"))
     _assert_values(data, "air_temp_c", [10.0, 10.5, 11.0, 11.5])
@@ -432,12 +433,34 @@ def test_read_weather_end_of_day_2400(name):
     _assert_account(meta, read=5, kept=4, duplicates_identical=1)
 
 
+@pytest.mark.parametrize("header, marks, said", [
+    ("date,hour ending,air_temp_c", "end", "line 1 says 'hour ending'"),
+    ("date,Hour Beginning,air_temp_c", "start", "line 1 says 'Hour Beginning'"),
+    ("date,time,air_temp_c", "start", "stamps assumed to mark the start of the interval"),
+])
+def test_interval_marks_are_sniffed_or_said_to_be_assumed(tmp_path, header, marks, said):
+    # Words above the data settle the marks; with no 24:00 and no words, the start is assumed
+    # and said (common practice, no source: most loggers label an average by its start).
+    path = tmp_path / "w.csv"
+    path.write_text(f"{header}\n2024-01-31,10:00,5.0\n2024-01-31,11:00,4.0\n", encoding="utf-8")
+    dialect = WeatherDialect(date_column="date", time_column=header.split(",")[1])
+    data, meta = read_weather(path, dialect, "1h", "UTC")
+    first = pd.Timestamp("2024-01-31 10:00", tz="UTC") - (pd.Timedelta("1h") if marks == "end"
+                                                           else pd.Timedelta(0))
+    assert data.index[0] == first
+    assert any(said in a for a in meta.files[0].assumptions)
+
+
 def test_read_weather_hour_ending_stamps():
     # Hour-ending stamps with 24:00, as in TMY files (REFERENCES.md, pvlib 723170TYA.CSV):
     # stamp_marks='end' labels each hour by its start, one interval earlier; 24:00 on 31 Jan
     # reports 23:00-24:00 of 31 Jan (ISO 8601:2000 section 5.3.2).
-    start, _ = _read("hour_ending_stamps.csv", interval="1h")
+    start, _ = _read("hour_ending_stamps.csv", WeatherDialect(stamp_marks="start"), interval="1h")
     end, meta = _read("hour_ending_stamps.csv", WeatherDialect(stamp_marks="end"), interval="1h")
+    sniffed, sniffed_meta = _read("hour_ending_stamps.csv", interval="1h")
+    pd.testing.assert_frame_equal(sniffed, end)  # 24:00 seen: the end of the interval
+    assert any("has 24:00: stamps mark the end of the interval (sniffed)" in a
+               for a in sniffed_meta.files[0].assumptions)
     pd.testing.assert_index_equal(start.index, _utc("2024-01-31 22:00", "2024-01-31 23:00",
                                                     "2024-02-01 00:00", "2024-02-01 01:00"))
     pd.testing.assert_index_equal(end.index, _utc("2024-01-31 21:00", "2024-01-31 22:00",

@@ -481,7 +481,7 @@ class _Reader:
             timestamp_column=self.get(table, "timestamp_column", str, where, None),
             date_order=self.choice(table, "date_order", DATE_ORDERS, where, None),
             stamp_zone=self.get(table, "stamp_zone", str, where, "local"),
-            stamp_marks=self.choice(table, "stamp_marks", STAMP_MARKS, where, "start"),
+            stamp_marks=self.choice(table, "stamp_marks", STAMP_MARKS, where, None),
             missing=tuple(missing), columns=columns,
             other_columns=self.choice(table, "other_columns", ("error", "ignore"), where, "error"),
             coerce_year=self.get(table, "coerce_year", int, where, None),

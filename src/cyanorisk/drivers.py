@@ -77,6 +77,9 @@ class Driver:
     """Earlier patterns of the same names."""
     kind: str = "weather"
     """'weather', 'lab' or 'calendar'."""
+    estimate: str | None = None
+    """Pattern of the family that stands in for this one where its variable is not recorded
+    (water temperature estimated from air temperature)."""
 
     def name(self, window: int | None = None, param: float | None = None) -> str:
         return self.pattern.format(window=window, param=_g(param))
@@ -108,6 +111,9 @@ _MIXING = ("wind mixing breaks up surface accumulations above about 2-3 m/s: Web
 _FLUSHING = ("heavy rain flushes and mixes a water body, lowering the risk in the short term: "
              "Reichwaldt & Ghadouani 2012, Water Research 46:1372-1393 (from memory)")
 _LIGHT = ("light fuels growth in warm, stratified water: Joehnk et al. 2008 (REFERENCES.md, V)")
+_ESTIMATE = ("surface water follows air temperature with a lag of days to weeks: air2water, "
+             "Piccolroaz, Toffolon & Majone 2013, Hydrol. Earth Syst. Sci. 17:3323-3338, in its "
+             "simplest form (REFERENCES.md, V secondary); warmth as for water temperature")
 _PERSISTENCE = ("a high count now makes a high count soon more likely (persistence of blooms): "
                 "common practice, no source")
 
@@ -121,7 +127,11 @@ GLOSSARY: tuple[Driver, ...] = (
            windows="air_temp_windows"),
     Driver("water_temp_mean_c_{window}d", "water_temp_c", Reducer.MEAN, "degC",
            "water temperature, mean of the last {window} days", Effect.RAISES, _WARMTH,
-           windows="water_temp_windows", defaults=((None, 7),)),
+           windows="water_temp_windows", defaults=((None, 7),),
+           estimate="water_temp_est_mean_c_{window}d"),
+    Driver("water_temp_est_mean_c_{window}d", "water_temp_est_c", Reducer.MEAN, "degC",
+           "water temperature estimated from air temperature, mean of the last {window} days",
+           Effect.RAISES, _ESTIMATE, windows="water_temp_windows"),
     Driver("wind_run_km_{window}d", "wind_speed_ms", Reducer.INTEGRAL, "km",
            "wind run, last {window} days", Effect.LOWERS, _MIXING, windows="wind_run_windows",
            scale=3.6, defaults=((None, 3),)),
@@ -190,6 +200,15 @@ def lookup(name: str) -> DriverInfo | None:
             label = family.label.format(window=window, param=_g(param))
             return DriverInfo(canonical, family, window, param, label)
     return None
+
+
+def stand_in(name: str) -> str | None:
+    """The driver that stands in for ``name`` where its variable is not recorded, if any:
+    ``water_temp_mean_c_7d`` -> ``water_temp_est_mean_c_7d``."""
+    info = lookup(name)
+    if info is None or info.family.estimate is None:
+        return None
+    return info.family.estimate.format(window=info.window_days, param=_g(info.param))
 
 
 def canonical_driver(name: str) -> str:

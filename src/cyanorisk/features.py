@@ -25,6 +25,8 @@ from cyanorisk.drivers import GLOSSARY, Driver, Reducer
 from cyanorisk.timeofday import parse_hhmm
 
 SECONDS_PER_DAY = 86_400.0
+ESTIMATED_WATER = "water_temp_est_c"
+"""Water temperature estimated from air temperature (not a station variable)."""
 
 
 # ---------------------------------------------------------------------------------------------
@@ -63,6 +65,51 @@ def degree_days_single_sine(tmin_c: np.ndarray, tmax_c: np.ndarray,
         t1 = np.arcsin(np.clip((base_c - mean) / np.where(amp > 0, amp, np.nan), -1.0, 1.0))
         partial = ((mean - base_c) * (np.pi / 2 - t1) + amp * np.cos(t1)) / np.pi
     return np.where(tmin >= base_c, mean - base_c, np.where(tmax <= base_c, 0.0, partial))
+
+
+def water_temp_from_air_c(air_c: np.ndarray, step_h: float, tau_days: float) -> np.ndarray:
+    """Surface water temperature estimated from air temperature [degC], on the air series' grid.
+
+    Notes
+    -----
+    air2water [1]_ writes the rate of change of the surface temperature as
+    dTw/dt = (a1 + a2 Ta - a3 Tw + a5 cos(2 pi (t/ty - a6))) / delta, with up to eight
+    parameters fitted per lake against measured water temperature. A station without water
+    temperature has nothing to fit them to, so its simplest form is used: a1 = a5 = 0,
+    delta = 1 and a2 = a3 = 1/tau, i.e. the water relaxes towards the air temperature with a
+    time constant tau:
+
+        dTw/dt = (Ta - Tw) / tau.
+
+    Over one step dt with Ta held, Tw(t + dt) = Tw(t) + (1 - exp(-dt/tau)) (Ta - Tw(t)), an
+    exponentially weighted mean of past air temperatures. A gap in the air temperature holds
+    the last reading; the series starts at the first reading. The level is biased (no a1, a2
+    fitted), but the model uses the estimate only through its fitted coefficient, where the lag
+    and the ranking of warm spells matter, not the offset.
+
+    References
+    ----------
+    .. [1] Piccolroaz, S., Toffolon, M. and Majone, B. (2013). A simple lumped model to convert
+       air temperature into surface water temperature in lakes. Hydrol. Earth Syst. Sci. 17:
+       3323-3338.
+
+    Examples
+    --------
+    After one time constant of steady 20 degC air, water that started at 10 degC is at
+    20 - 10/e:
+
+    >>> air = np.r_[10.0, np.full(24 * 15, 20.0)]
+    >>> float(np.round(water_temp_from_air_c(air, 1.0, 15.0)[-1], 3))
+    16.321
+    """
+    from scipy.signal import lfilter
+
+    air = pd.Series(np.asarray(air_c, dtype=float)).ffill().bfill().to_numpy()
+    if not len(air) or np.isnan(air[0]):
+        return np.full(len(air), np.nan)
+    alpha = 1.0 - np.exp(-step_h / (24.0 * tau_days))
+    out, _ = lfilter([alpha], [1.0, alpha - 1.0], air, zi=[(1.0 - alpha) * air[0]])
+    return out
 
 
 def wind_at_2m(speed_ms: np.ndarray, height_m: float) -> np.ndarray:
@@ -126,6 +173,10 @@ class FeatureSettings:
     air_temp_windows: tuple[int, ...] = (3, 7, 30)
     solar_windows: tuple[int, ...] = (7,)
     water_temp_windows: tuple[int, ...] = (1, 7)
+    water_temp_tau_days: float = 15.0
+    """Time constant [d] of water temperature estimated from air temperature where the station
+    records none (:func:`water_temp_from_air_c`): a value for a shallow reservoir of a few
+    metres; common practice, no source (deeper lakes follow the air more slowly)."""
     anemometer_height_m: float | None = None
     """When given, wind is adjusted to 2 m (FAO-56 eq. 47) before wind run and calm spells."""
     min_good_share: float = 0.8
@@ -138,6 +189,8 @@ class FeatureSettings:
                              "changes skip or repeat the hour")
         if not 0 < self.min_good_share <= 1:
             raise ValueError("min_good_share must be in (0, 1]")
+        if not self.water_temp_tau_days > 0:
+            raise ValueError("water_temp_tau_days must be a positive number of days")
 
     def windows(self, family: Driver) -> tuple[int, ...]:
         """The windows [d] a driver family is computed over."""
@@ -249,6 +302,8 @@ class FeatureBuilder:
         end = np.floor(np.asarray((issue - weather.index[0]) / step)).astype(np.int64)
         win = _Windowed(step / pd.Timedelta(hours=1), end, len(weather))
         series = {v: self._series(weather, v) for v in _variables() if v in weather}
+        if "air_temp_c" in series:
+            series[ESTIMATED_WATER] = self._estimated_water(series["air_temp_c"], win)
         cols: dict[str, np.ndarray] = {}
         windows_of: dict[str, set[int]] = {}
         for family in GLOSSARY:
@@ -274,6 +329,18 @@ class FeatureBuilder:
         if var == "wind_speed_ms" and self.settings.anemometer_height_m:
             values = wind_at_2m(values, self.settings.anemometer_height_m)
         return _Series(values, usable, good, filled)
+
+    def _estimated_water(self, air: _Series, win: _Windowed) -> _Series:
+        """Water temperature estimated from air temperature, usable once two time constants of
+        air have been seen (the start value is forgotten to 1/e^2), with the air's quality."""
+        values = water_temp_from_air_c(np.where(air.usable, air.values, np.nan), win.step_h,
+                                       self.settings.water_temp_tau_days)
+        first = np.flatnonzero(air.usable)
+        warm = np.zeros(len(values), dtype=bool)
+        if len(first):
+            warm[first[0] + win.size(2 * self.settings.water_temp_tau_days):] = True
+        usable = warm & ~np.isnan(values)
+        return _Series(values, usable, air.good & usable, air.filled & usable)
 
     def _per_interval(self, family: Driver, x: _Series, param: float | None) -> np.ndarray:
         """The value each interval contributes to a family's windows (0 where unusable): the
@@ -372,4 +439,5 @@ class FeatureBuilder:
 
 def _variables() -> list[str]:
     """Weather variables some driver family is computed from, in glossary order."""
-    return list(dict.fromkeys(d.variable for d in GLOSSARY if d.variable is not None))
+    return list(dict.fromkeys(d.variable for d in GLOSSARY
+                              if d.variable is not None and d.variable != ESTIMATED_WATER))

@@ -180,6 +180,8 @@ class ModelInfo:
     drivers: list[str] | None = None
     left_out: list[dict[str, Any]] = field(default_factory=list)
     """Drivers left out of the fit, and why."""
+    driver_notes: list[str] = field(default_factory=list)
+    """Drivers estimated, or left out, because the station does not record their variable."""
 
 
 @dataclass
@@ -539,6 +541,9 @@ def assess(spec: SiteSpec, models: SiteModels, weather: pd.DataFrame, totals: pd
     table = pd.concat([table, last_known(table, site_totals, scheme, spec.lab_delay_days, tz)],
                       axis=1)
     X = prepare(table)
+    for name in models.risk.drivers:  # a sensor the station no longer has: no value, not a crash
+        if name not in X:
+            X[name] = np.nan
     today = X.iloc[[-1]]
     last = today.iloc[0]
     samples = known_samples(site_totals, issue, spec)
@@ -616,7 +621,8 @@ def assess(spec: SiteSpec, models: SiteModels, weather: pd.DataFrame, totals: pd
         toxins=toxins, actions=actions, cautions=caution_list,
         deferral=DEFERRAL.format(authority=spec.authority),
         model=ModelInfo(card.get("cyanorisk_version"), card.get("training_window"),
-                        card.get("fingerprint"), card.get("drivers"), card.get("left_out", [])),
+                        card.get("fingerprint"), card.get("drivers"), card.get("left_out", []),
+                        list(card.get("driver_notes", []))),
         quality=quality, counts=recent_counts(samples, days[0], spec), history=history)
 
 

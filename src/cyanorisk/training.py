@@ -11,6 +11,7 @@ after the issue time meets level k, 0 when samples were taken then and none meet
 
 from __future__ import annotations
 
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
@@ -18,7 +19,7 @@ import pandas as pd
 
 from cyanorisk.align import level_slug
 from cyanorisk.align import training_table as align_training_table
-from cyanorisk.drivers import Effect, lookup
+from cyanorisk.drivers import Effect, lookup, stand_in
 from cyanorisk.features import FeatureBuilder
 from cyanorisk.ingest.samples import empty_totals
 from cyanorisk.model import (
@@ -32,6 +33,7 @@ from cyanorisk.model import (
     prepare,
 )
 from cyanorisk.spec import SiteSpec
+from cyanorisk.variables import WEATHER_VARIABLES
 from cyanorisk.verify import brier_score, roc_auc
 from cyanorisk.version import __version__
 
@@ -44,6 +46,64 @@ def training_table(spec: SiteSpec, weather: pd.DataFrame,
     totals = empty_totals() if totals is None else totals
     return align_training_table(drivers, totals, spec.scheme, spec.site_id, spec.lab_delay_days,
                                 spec.timezone)
+
+
+@dataclass(frozen=True)
+class DriverChoice:
+    """The drivers a site's model can use, given what its station records."""
+
+    used: tuple[str, ...]
+    substituted: dict[str, str] = field(default_factory=dict)
+    """Driver asked for -> the driver standing in for it."""
+    not_recorded: dict[str, str] = field(default_factory=dict)
+    """Driver asked for -> the variable the station does not record."""
+
+    @property
+    def notes(self) -> list[str]:
+        """One sentence per driver standing in or left out, for the model card and the report."""
+        out = []
+        for asked, used in self.substituted.items():
+            out.append(f"{_label(asked)}: not recorded at this station, estimated from air "
+                       f"temperature ({used}; air2water, Piccolroaz et al. 2013, simplest form)")
+        for asked, variable in self.not_recorded.items():
+            out.append(f"{_label(asked)}: left out, the station records no "
+                       f"{_variable_label(variable)} ({variable})")
+        return out
+
+
+def _label(name: str) -> str:
+    info = lookup(name)
+    text = info.label if info is not None else name
+    return text[:1].upper() + text[1:]
+
+
+def _variable_label(variable: str) -> str:
+    v = WEATHER_VARIABLES.get(variable)
+    return v.description if v is not None else variable
+
+
+def available_drivers(asked: tuple[str, ...] | list[str], table: pd.DataFrame) -> DriverChoice:
+    """The drivers asked for that the table holds values of; a driver whose variable the
+    station does not record is replaced by its stand-in where it has one (water temperature
+    estimated from air temperature), or else left out. Never raises: a site with no usable
+    driver at all is refused later, by the fit."""
+    used, substituted, missing = [], {}, {}
+    for name in asked:
+        if _has_values(table, name):
+            used.append(name)
+            continue
+        other = stand_in(name)
+        if other is not None and _has_values(table, other):
+            used.append(other)
+            substituted[name] = other
+            continue
+        info = lookup(name)
+        missing[name] = info.family.variable if info and info.family.variable else name
+    return DriverChoice(tuple(dict.fromkeys(used)), substituted, missing)
+
+
+def _has_values(table: pd.DataFrame, name: str) -> bool:
+    return name in table and bool(table[name].notna().any())
 
 
 def label_balance(table: pd.DataFrame, horizon_days: int) -> dict[str, dict[str, int]]:
@@ -105,7 +165,11 @@ def fit_models(spec: SiteSpec, table: pd.DataFrame) -> tuple[RiskModel, CountMod
     h = spec.horizon_days
     X = prepare(table)
     y = ordinal_outcome(X, label_columns(spec))
-    risk = fit_signed(list(spec.drivers), spec.levels, h, X, y)
+    choice = available_drivers(spec.drivers, X)
+    if not choice.used:
+        raise ValueError("none of the site's drivers can be computed from what its station "
+                         "records: " + "; ".join(choice.notes))
+    risk = fit_signed(list(choice.used), spec.levels, h, X, y)
     count = CountModel(list(risk.drivers)).fit(X, X[f"max_count_log10_{h}d"].to_numpy())
     clim = ClimatologyModel(spec.levels).fit(X["issue_date"], y)
     return risk, count, clim
@@ -208,5 +272,10 @@ def fit_site(spec: SiteSpec, table: pd.DataFrame, cross_validation: bool = True)
                                           "seasons": int(cv["season"].nunique())}
                                          if len(cv) else None)
     card["left_out"] = list(risk.left_out_)
+    choice = available_drivers(spec.drivers, X)
+    card["drivers_asked"] = list(spec.drivers)
+    card["substituted"] = dict(choice.substituted)
+    card["not_recorded"] = dict(choice.not_recorded)
+    card["driver_notes"] = choice.notes
     return SiteModels(spec.site_id, risk, count, clim, card,
                       driver_normals(X, list(risk.drivers)))

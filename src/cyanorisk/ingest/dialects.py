@@ -60,8 +60,10 @@ class WeatherDialect:
     """'dmy', 'mdy' or 'ymd'."""
     stamp_zone: str = "local"
     """'local' (the site's zone, daylight saving included), 'UTC', or a fixed offset '+10:00'."""
-    stamp_marks: str = "start"
-    """Whether a stamp marks the 'start' or the 'end' of the interval it reports."""
+    stamp_marks: str | None = None
+    """Whether a stamp marks the 'start' or the 'end' of the interval it reports; sniffed when
+    not given (a 24:00 stamp, or words such as 'hour ending' above the data, mean 'end';
+    otherwise 'start' is assumed and said)."""
     missing: tuple[str, ...] = DEFAULT_MISSING
     columns: Mapping[str, ColumnSpec] = field(default_factory=dict)
     other_columns: str = "error"
@@ -77,7 +79,7 @@ class WeatherDialect:
             raise ValueError(f"decimal must be '.' or ',', not {self.decimal!r}")
         if self.date_order not in (None, *DATE_ORDERS):
             raise ValueError(f"date_order must be one of {', '.join(DATE_ORDERS)}")
-        if self.stamp_marks not in STAMP_MARKS:
+        if self.stamp_marks not in (None, *STAMP_MARKS):
             raise ValueError("stamp_marks must be 'start' or 'end'")
         if self.other_columns not in ("error", "ignore"):
             raise ValueError("other_columns must be 'error' or 'ignore'")
@@ -218,9 +220,53 @@ def sniff_layout(text: TextFile, dialect: WeatherDialect) -> Layout:
         if name and name not in header:
             raise IngestError(text.path, f"the dialect names column '{name}' but the header has "
                                          f"{', '.join(header)}", line=skip + 1, column=name)
+    marks = dialect.stamp_marks
+    if marks is None:
+        marks, note = sniff_stamp_marks(text, skip)
+        said.append(note)
     resolved = replace(dialect, separator=table.separator, skip_lines=skip, decimal=table.decimal,
-                       date_column=date_col, time_column=time_col, timestamp_column=ts_col)
+                       date_column=date_col, time_column=time_col, timestamp_column=ts_col,
+                       stamp_marks=marks)
     return Layout(resolved, header, skip, tuple(said))
+
+
+_END_WORDS = re.compile(r"\b(?:hour|period|interval)[ _-]?ending\b|\bending\b"
+                        r"|\bend of (?:the )?(?:hour|interval|period)\b|\binterval end\b", re.I)
+_START_WORDS = re.compile(r"\b(?:hour|period|interval)[ _-]?(?:beginning|starting)\b"
+                          r"|\bbeginning\b|\bstart of (?:the )?(?:hour|interval|period)\b", re.I)
+_END_OF_DAY = re.compile(rb"(?:^|[^0-9:])24:00(?![0-9])", re.M)
+
+
+def sniff_stamp_marks(text: TextFile, skip: int) -> tuple[str, str]:
+    """Whether a file's stamps mark the start or the end of their intervals, with the evidence.
+
+    A stamp of 24:00 can only end an interval (ISO 8601:2000 section 5.3.2: 24:00 is the end
+    of a calendar day). Words in the preamble or header
+    ('hour ending', 'beginning') say it outright. Without either, the start is assumed, and the
+    note says that it is an assumption.
+
+    Returns
+    -------
+    marks : {'start', 'end'}
+    note : str
+        One sentence for the file's assumptions, naming the line of the evidence.
+    """
+    top = text.head(skip + 1)
+    for k, line in enumerate(top, start=1):
+        if found := _END_WORDS.search(line):
+            return "end", (f"line {k} says '{found.group(0)}': stamps mark the end of the "
+                           "interval (sniffed)")
+    body_start = text.offset_of_line(skip + 1)
+    hit = _END_OF_DAY.search(text.data, body_start)
+    if hit is not None:
+        number = int(np.searchsorted(text.starts, hit.start() + 1, side="right"))
+        return "end", f"line {number} has 24:00: stamps mark the end of the interval (sniffed)"
+    for k, line in enumerate(top, start=1):
+        if found := _START_WORDS.search(line):
+            return "start", (f"line {k} says '{found.group(0)}': stamps mark the start of the "
+                             "interval (sniffed)")
+    return "start", ("stamps assumed to mark the start of the interval: no 24:00 and no words "
+                     "such as 'hour ending' in the file; set stamp_marks to confirm")
 
 
 def _sniff_decimal(text: TextFile, sep: str, skip: int) -> str:

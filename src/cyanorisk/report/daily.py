@@ -222,13 +222,16 @@ def _drivers_section(c: dict[str, Any]) -> str:
     dropped = ("<p class='small'>Left out of the model because their fitted effect ran against "
                "the direction the literature gives them: "
                + e(", ".join(d["driver"] for d in left_out)) + ".</p>" if left_out else "")
+    notes = c["model"].get("driver_notes") or []
+    station = ("<p class='small'>What this station does not record: "
+               + e("; ".join(notes)) + ".</p>" if notes else "")
     return f"""<section id="drivers"><h2>What drives the outlook</h2>
 <p class="small">Each driver today against its usual value for the time of year, and whether the
 difference raises or lowers the risk. Warmth, light, calm spells and a high count raise it; wind
 and heavy rain lower it (directions from the literature; each driver's source is in the driver
 glossary).</p><ul>{texts}</ul><div class="wide"><table>
 <tr><th>Driver</th><th class="num">Today</th><th class="num">Usual</th><th>Effect</th></tr>
-{rows}</table></div>{missing}{dropped}</section>"""
+{rows}</table></div>{missing}{dropped}{station}</section>"""
 
 
 def render_html(a: Assessment) -> str:

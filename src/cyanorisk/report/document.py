@@ -43,7 +43,8 @@ def report_document(a: Assessment) -> dict[str, Any]:
     thresholds = f.thresholds
     model: dict[str, Any] = {"cyanorisk_version": __version__,
                              "trained_with": m.trained_with, "training_window": m.training_window,
-                             "fingerprint": m.fingerprint, "left_out": list(m.left_out)}
+                             "fingerprint": m.fingerprint, "left_out": list(m.left_out),
+                             "driver_notes": list(m.driver_notes)}
     if m.drivers is not None:
         model["drivers"] = m.drivers
     lab = a.in_force

@@ -38,5 +38,7 @@ def model_card_text(card: dict[str, Any], path: str) -> str:
             lines.append(f"    {label}, {level}: model {_fmt(m['roc_auc'])} / {_fmt(m['brier'])}; "
                          f"climatology {_fmt(c['roc_auc'])} / {_fmt(c['brier'])}{extra} "
                          f"({m['events']:,} events in {m['n']:,})")
+    for note in card.get("driver_notes", []):
+        lines.append(f"  {note}")
     lines.append(f"  saved {path}")
     return "\n".join(lines)
