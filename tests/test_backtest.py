@@ -250,13 +250,19 @@ def test_season_scores_keep_a_season_without_events():
 
 def test_a_season_without_enough_history_is_noted_and_kept(result):
     # 2017-18: only the half season from January 2017 was known before it
-    assert any(n.startswith("season 2017: no forecast") for n in result.notes)
+    assert any(n.startswith("season 2017: not replayed, only") for n in result.notes)
+    assert set(result.not_replayed) == {2017}
+    assert "labelled issue days were known before it" in result.not_replayed[2017]
+    assert 2017 not in result.replayed and 2018 in result.replayed
     rows = result.scores[(result.scores["season"] == 2017) & (result.scores["source"] == "model")]
     assert len(rows) == len(LEVELS)
-    assert (rows["n"] == 0).all()
-    assert rows["note"].str.contains("no forecast issued").all()
+    assert (rows["n"] == 0).all() and not rows["replayed"].any()
+    assert rows["note"].str.startswith("not replayed: only").all()
     f = result.forecasts[result.forecasts["season"] == 2017]
     assert f["probability"].isna().all() and f["persistence"].notna().any()
+    assert f["warned"].isna().all()  # blank, never 'not warned', where nothing was forecast
+    replayed = result.forecasts[result.forecasts["season"] == 2018]
+    assert replayed["warned"].notna().all()
 
 
 def test_a_season_without_forecasts_is_not_reported_as_missed(result):
@@ -281,7 +287,7 @@ def test_model_beats_climatology_overall(result):
         assert model["brier_skill"] == pytest.approx(1 - model["brier"] / clim["brier"], rel=1e-9)
         assert 0 < model["brier_skill"] <= 1, level  # the point of the tool
         assert clim["brier_skill"] == pytest.approx(0.0, abs=1e-12)
-        assert model["seasons"] == len(DEMO_SEASONS) - 1
+        assert model["seasons"] == len(result.replayed) == len(DEMO_SEASONS) - 2  # 2017 not
 
 
 def test_bootstrap_intervals_contain_the_point_estimates(result):

@@ -239,13 +239,13 @@ def test_tune_proposes_and_only_an_accepted_proposal_is_applied(demo, result, tm
     assert main(["tune", "--config", str(config), "--miss-cost", "5"]) == 0
     out = capsys.readouterr().out
     proposal = proposal_file(config)
-    plot = tmp_path / "reports" / SITE_ID / "tuning_2017-2024.png"  # all seasons but the first
+    plot = tmp_path / "reports" / SITE_ID / "tuning_2018-2024.png"  # the seasons replayed
     assert f"wrote {proposal}" in out and f"wrote {plot}" in out
     assert "the proposal is not in force" in out and "--accept" in out
     assert plot.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     tuned = tomllib.loads(proposal.read_text(encoding="utf-8"))
     names = demo.spec.levels
-    assert (tuned["site_id"], tuned["seasons"]) == (SITE_ID, "2017-2024")
+    assert (tuned["site_id"], tuned["seasons"]) == (SITE_ID, "2018-2024")
     assert tuned["rule"] == "miss cost 5 (a missed exceedance costs 5 false alarms)"
     assert sorted(tuned["warn_at"]) == sorted(names)
     # the thresholds the library chooses on the same backtest, written to 2 decimals
@@ -264,7 +264,7 @@ def test_tune_proposes_and_only_an_accepted_proposal_is_applied(demo, result, tm
     forecast = report_forecast(config, capsys)
     assert forecast["warn_at"] == pytest.approx(tuned["warn_at"], abs=1e-12)
     source = forecast["thresholds_source"]
-    assert str(thresholds_file(config)) in source and "seasons 2017-2024" in source
+    assert str(thresholds_file(config)) in source and "seasons 2018-2024" in source
     assert "miss cost 5" in source and f"accepted {in_force['accepted_at']}" in source
 
 

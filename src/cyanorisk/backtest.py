@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import warnings
 from collections.abc import Callable, Iterable, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
@@ -60,6 +60,15 @@ class BacktestResult:
     exceedances: pd.DataFrame
     """Per season and level: the first sample that met the level (NaT if none)."""
     notes: list[str]
+    not_replayed: dict[int, str] = field(default_factory=dict)
+    """Seasons asked for that could not be replayed -> why (no forecast was issued in them)."""
+
+    @property
+    def replayed(self) -> list[int]:
+        """Seasons with forecasts, in order."""
+        seasons = sorted(int(s) for s in self.forecasts["season"].unique()) \
+            if len(self.forecasts) else []
+        return [s for s in seasons if s not in self.not_replayed]
 
 
 def parse_seasons(text: str | None, available: Sequence[int]) -> list[int]:
@@ -92,6 +101,7 @@ def walk_forward(spec: SiteSpec, table: pd.DataFrame, totals: pd.DataFrame, seas
     issue_day = pd.to_datetime(X["issue_date"])
     season = season_of(X["issue_date"], spec.season_start_month)
     parts, notes = [], []
+    not_replayed: dict[int, str] = {}
     loop = progress(seasons, len(seasons), "backtest") if progress else seasons
     for s in loop:
         start = pd.Timestamp(year=int(s), month=spec.season_start_month, day=1)
@@ -101,15 +111,15 @@ def walk_forward(spec: SiteSpec, table: pd.DataFrame, totals: pd.DataFrame, seas
                              "issue_date": X.loc[in_season, "issue_date"].to_numpy()})
         history = int((known_before.to_numpy() & ~np.isnan(y)).sum())
         risk = clim = None
-        if history < MIN_HISTORY_DAYS:
-            notes.append(f"season {s}: no forecast, only {history} labelled issue days were known "
-                         f"before it (at least {MIN_HISTORY_DAYS} are needed)")
-        else:
+        why = history_shortfall(history)
+        if why is None:
             try:
                 risk, _, clim = fit_models(spec, table[known_before.to_numpy()])
             except (ValueError, RuntimeError) as exc:
-                notes.append(f"season {s}: no forecast, the model could not be fitted on the data "
-                             f"known before it ({exc})")
+                why = f"the model could not be fitted on the data known before it ({exc})"
+        if why is not None:
+            not_replayed[int(s)] = why
+            notes.append(f"season {s}: not replayed, {why}")
         p = risk.predict_proba(X[in_season]) if risk is not None else None
         c = clim.predict_proba(X.loc[in_season, "issue_date"]) if clim is not None else None
         per = PersistenceModel(names).predict_proba(X.loc[in_season, "last_level"])
@@ -121,13 +131,32 @@ def walk_forward(spec: SiteSpec, table: pd.DataFrame, totals: pd.DataFrame, seas
             block["outcome"] = np.where(np.isnan(y[in_season]), np.nan, y[in_season] >= k)
             block["climatology"] = c[name].to_numpy() if c is not None else np.nan
             block["persistence"] = per[name].to_numpy()
-            block["warned"] = block["probability"] >= thresholds.at(name)
+            block["warned"] = warned_flags(block["probability"], thresholds.at(name))
             parts.append(block)
     forecasts = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame()
     exceedances = first_exceedances(totals, spec, seasons)
-    scores = season_scores(forecasts, exceedances, names, thresholds)
-    overall = overall_scores(forecasts, names)
-    return BacktestResult(forecasts, scores, overall, exceedances, notes)
+    scores = season_scores(forecasts, exceedances, names, thresholds, not_replayed)
+    replayed = forecasts[~forecasts["season"].isin(list(not_replayed))] if len(forecasts) \
+        else forecasts
+    overall = overall_scores(replayed, names)
+    return BacktestResult(forecasts, scores, overall, exceedances, notes, not_replayed)
+
+
+def history_shortfall(labelled_days_before: int) -> str | None:
+    """Why a season cannot be replayed for lack of history, or None when it can."""
+    if labelled_days_before >= MIN_HISTORY_DAYS:
+        return None
+    return (f"only {labelled_days_before} labelled issue days were known before it (at least "
+            f"{MIN_HISTORY_DAYS}, about a season's worth, are needed)")
+
+
+def warned_flags(probability: pd.Series, warn_at: float | None) -> pd.Series:
+    """Whether the probability reached the warning threshold; blank (NA) where no forecast
+    was issued, so that 'not warned' is never claimed for a day without a forecast."""
+    p = probability.to_numpy(dtype=float)
+    out = pd.array(p >= (warn_at if warn_at is not None else np.inf), dtype="boolean")
+    out[np.isnan(p)] = pd.NA
+    return pd.Series(out, index=probability.index)
 
 
 def first_exceedances(totals: pd.DataFrame, spec: SiteSpec, seasons: Sequence[int]) -> pd.DataFrame:
@@ -186,18 +215,25 @@ def _scores(block: pd.DataFrame, source: str, warn_at: float | None,
 
 
 def season_scores(forecasts: pd.DataFrame, exceedances: pd.DataFrame, names: list[str],
-                  thresholds: Thresholds | None = None) -> pd.DataFrame:
-    """Scores per season, level and source (see :class:`BacktestResult`)."""
+                  thresholds: Thresholds | None = None,
+                  not_replayed: dict[int, str] | None = None) -> pd.DataFrame:
+    """Scores per season, level and source (see :class:`BacktestResult`); a season not
+    replayed has ``replayed`` False and the reason in its note."""
     rows = []
     if forecasts.empty:
         return pd.DataFrame()
+    not_replayed = not_replayed or {}
     for (s, level), block in forecasts.groupby(["season", "level"], sort=True):
         ex = exceedances[(exceedances["season"] == s) & (exceedances["level"] == level)]
         first = ex["first_exceedance"].iloc[0] if len(ex) else None
         threshold = (thresholds or Thresholds({})).at(level)
+        why = not_replayed.get(int(s))
         for source in SOURCES:
-            rows.append({"season": s, "level": level, "source": source,
-                         **_scores(block, source, threshold, first)})
+            row = {"season": s, "level": level, "source": source, "replayed": why is None,
+                   **_scores(block, source, threshold, first)}
+            if why is not None:
+                row["note"] = f"not replayed: {why}"
+            rows.append(row)
     return pd.DataFrame(rows)
 
 

@@ -7,7 +7,8 @@ command line gives it (documented in the README):
 - 2: a configuration or option problem (:class:`ConfigError`, :class:`OptionError`);
 - 1: a data problem: an input file, a model file, a backtest that cannot be run as asked
   (:class:`IngestError`, :class:`ModelFileError`, :class:`BacktestError`);
-- 3: the data are insufficient for an assessment (see ``cyanorisk report`` and ``run``);
+- 3: the data are insufficient for an assessment (see ``cyanorisk report`` and ``run``), or
+  for a backtest to replay any season (:class:`NothingToReplayError`);
 - 4: the store cannot be used, or another run holds a lock (:class:`StoreError`,
   :class:`RunLockedError`).
 """
@@ -74,6 +75,12 @@ class ModelFileError(CyanoriskError, ValueError):
 
 class BacktestError(CyanoriskError, ValueError):
     """A backtest that cannot be run as asked (e.g. seasons outside the data)."""
+
+
+class NothingToReplayError(BacktestError):
+    """No season asked for has enough history before it to be replayed (insufficient data)."""
+
+    exit_status = EXIT_INSUFFICIENT
 
 
 class StoreError(CyanoriskError, RuntimeError):

@@ -23,7 +23,7 @@ import pandas as pd
 from cyanorisk.atomic import write_group
 from cyanorisk.backtest import BacktestResult, parse_seasons, walk_forward
 from cyanorisk.config import Config, Site
-from cyanorisk.errors import ModelFileError
+from cyanorisk.errors import ModelFileError, NothingToReplayError
 from cyanorisk.features import issue_instants
 from cyanorisk.forecast import Assessment, InForce, assess, default_as_of, known_samples, lab_level
 from cyanorisk.model import SiteModels
@@ -227,7 +227,11 @@ class SitePipeline:
         seasons = parse_seasons(seasons_text, available)
         totals = self.clean().totals
         result = walk_forward(self.spec, table, totals, seasons, self.thresholds(), progress)
-        return BacktestRun(result, f"{seasons[0]}-{seasons[-1]}", totals)
+        replayed = result.replayed
+        if not replayed:
+            raise NothingToReplayError("no season could be replayed: " + "; ".join(
+                f"season {s}: {why}" for s, why in sorted(result.not_replayed.items())))
+        return BacktestRun(result, f"{replayed[0]}-{replayed[-1]}", totals)
 
     def write_backtest(self, run: BacktestRun) -> list[Path]:
         """Forecasts (CSV), scores per season and overall (CSV) and the page, as a group."""

@@ -65,7 +65,7 @@ def timeline_plot(forecasts: pd.DataFrame, counts: pd.DataFrame, season: int, na
         g = f[f["level"] == name]
         right.plot(pd.to_datetime(g["issue_date"]), 100 * g["probability"], color=colours[name],
                    lw=1, label=f"{name}: chance")
-        warned = g[g["warned"].astype(bool)]
+        warned = g[g["warned"].fillna(False).astype(bool)]
         right.plot(pd.to_datetime(warned["issue_date"]), np.full(len(warned), 103.0), "|",
                    color=colours[name], ms=4)
     right.set_ylim(0, 108)
@@ -114,8 +114,12 @@ def season_sentences(result, names: list[str]) -> list[tuple[str, list[str]]]:
         parts = []
         s = scores[scores["season"] == season]
         title = f"Season {season}-{season + 1}"
+        why = result.not_replayed.get(int(season))
+        if why is not None:
+            out.append((title, [f"not replayed: {why}."]))
+            continue
         if (s["note"].str.contains("no forecast issued", regex=False)).all():
-            out.append((title, ["no forecast was issued (too little was known before it)."]))
+            out.append((title, ["no forecast was issued."]))
             continue
         for name in names:
             r = s[s["level"] == name].iloc[0]
@@ -187,11 +191,14 @@ def render_backtest(site_name: str, result, counts: pd.DataFrame, names: list[st
         reliability_plot(result.forecasts, level, ax=axes[1])
         figs.append(data_uri(fig))
     timelines = []
-    for season in sorted(result.forecasts["season"].unique()):
+    for season in result.replayed:
         fig, ax = new_figure(9, 2.4)
         timeline_plot(result.forecasts, counts, season, names, cells, ax=ax)
         timelines.append(data_uri(fig))
     notes = "".join(f"<li>{e(n)}</li>" for n in result.notes) or "<li>none</li>"
+    skipped = ("<p><strong>Not replayed:</strong> " + e("; ".join(
+        f"season {s}-{s + 1}: {why}" for s, why in sorted(result.not_replayed.items())))
+        + ". Their days count in no score below.</p>" if result.not_replayed else "")
     summary = "".join(f"<li>{e(title)}<ul>" + "".join(f"<li>{e(s)}</li>" for s in parts)
                       + "</ul></li>" for title, parts in season_sentences(result, names))
     return f"""<!DOCTYPE html>
@@ -203,7 +210,7 @@ def render_backtest(site_name: str, result, counts: pd.DataFrame, names: list[st
 <p class="sub">Each season was forecast by models fitted only on what was known before it
 started, issued every day as the daily report would have been, with the warning thresholds in
 force. A warning counts for a level on a day whose chance reached that level's threshold.</p>
-<section id="summary"><h2>Season by season</h2><ul>{summary}</ul>
+<section id="summary"><h2>Season by season</h2>{skipped}<ul>{summary}</ul>
 <p class="small">Days warned ahead: from the start of the warning spell that was running when
 the level was first reached to that day. An exceedance event is a run of days with a sample at
 the level in the horizon; a false-alarm spell is a run of warning days with none.</p></section>
