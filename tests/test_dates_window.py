@@ -108,3 +108,33 @@ def test_result_reported_before_its_sample_is_flagged(tmp_path):
     flags = dict(zip(records["sample_id"], records["flag"], strict=True))
     assert "reported_before_sampled" not in flags["H1"]
     assert "reported_before_sampled" in flags["H2"]
+
+
+# ---------------------------------------------------------------------------------------------
+# Count limits in the lab's own unit
+
+
+@pytest.mark.parametrize("text, cells_per_ml", [
+    ("100 cells/mL", 100.0), ("100000 cells/L", 100.0), ("1e5 cells/L", 100.0),
+    ("2,000 cells/mL", 2000.0), ("0.5 cells/mL", 0.5)])
+def test_limits_in_the_labs_unit(text, cells_per_ml):
+    # 1 L = 1000 mL (SI): 100 000 cells/L is 100 cells/mL.
+    from cyanorisk.ingest.samples import limit_cells_per_ml
+    assert limit_cells_per_ml(text) == cells_per_ml
+    layout = SampleLayout(shape="long", taxon_column="T", count_column="C", detection_limit=text)
+    assert layout.detection_limit_cells_per_ml == cells_per_ml
+
+
+@pytest.mark.parametrize("text", ["100", "100 cells", "-5 cells/mL", "many cells/L"])
+def test_a_limit_without_its_unit_is_refused(text):
+    with pytest.raises(ValueError, match="detection_limit .* is not a count with its unit"):
+        SampleLayout(shape="long", taxon_column="T", count_column="C", detection_limit=text)
+
+
+def test_old_and_new_limit_keys_must_agree():
+    ok = SampleLayout(shape="long", taxon_column="T", count_column="C",
+                      detection_limit="100000 cells/L", detection_limit_cells_per_ml=100)
+    assert ok.detection_limit_cells_per_ml == 100
+    with pytest.raises(ValueError, match="give one of them"):
+        SampleLayout(shape="long", taxon_column="T", count_column="C",
+                     detection_limit="100 cells/L", detection_limit_cells_per_ml=100)

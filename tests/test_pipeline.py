@@ -195,3 +195,21 @@ def test_a_run_day_inside_the_record_refuses_what_comes_after_it(own_copy):
     again = SitePipeline.of(config, site, run_day=pd.Timestamp("2031-05-01").date()).clean()
     assert not again.reused and again.summary["dates"]["after_latest"] == 0
     pd.testing.assert_frame_equal(again.weather, full.weather, check_exact=True)
+
+
+def test_lab_sheets_that_never_name_the_site_are_refused_with_the_alias_fix(own_copy):
+    from cyanorisk.errors import IngestError
+
+    text = own_copy.read_text(encoding="utf-8")
+    renamed = text.replace('id = "tallowbark"', 'id = "tallow"')
+    own_copy.write_text(renamed, encoding="utf-8")
+    with pytest.raises(IngestError) as info:
+        pipeline_of(own_copy).clean()
+    message = str(info.value)
+    assert "column 'Site'" in message and "no sample names site 'tallow'" in message
+    assert "'tallowbark'" in message and 'site_aliases = ["tallowbark"]' in message
+    own_copy.write_text(renamed.replace('layout = "merrin_lab"',
+                                        'layout = "merrin_lab"\nsite_aliases = ["tallowbark"]'),
+                        encoding="utf-8")
+    clean = pipeline_of(own_copy).clean()
+    assert len(clean.totals) and set(clean.totals["site_id"]) == {"tallow"}

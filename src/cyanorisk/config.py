@@ -125,6 +125,8 @@ class SampleSource:
     """The layout named by ``layout``."""
     taxa: dict[str, Taxon] = field(default_factory=dict)
     """The taxon table: which taxa are cyanobacteria and which are toxin producers."""
+    site_aliases: tuple[str, ...] = ()
+    """Names the lab sheets' site column uses for this site besides its id."""
 
 
 @dataclass(frozen=True)
@@ -526,7 +528,7 @@ class _Reader:
         if "samples" in table:
             sk = f"{where}.samples"
             sm = self.get(table, "samples", dict, where)
-            self.keys(sm, {"files", "layout", "lab_delay_days"}, sk)
+            self.keys(sm, {"files", "layout", "lab_delay_days", "site_aliases"}, sk)
             layout = self.get(sm, "layout", str, sk)
             if layout not in self.layouts:
                 raise self.fail(f"{sk}.layout", f"{layout!r} is not defined under [sample_layouts]; "
@@ -534,8 +536,10 @@ class _Reader:
             s_patterns, s_files = self.files(self.get(sm, "files", list, sk), f"{sk}.files",
                                              check_files)
             delay = self.typed(sm.get("lab_delay_days", 3.0), float, f"{sk}.lab_delay_days")
+            aliases = self.typed(sm.get("site_aliases", []), tuple[str, ...],
+                                 f"{sk}.site_aliases")
             samples = SampleSource(s_patterns, s_files, layout, delay, self.layouts[layout],
-                                   self.taxa)
+                                   self.taxa, aliases)
         drivers = self.record(self.get(table, "drivers", dict, where, {}), FeatureSettings,
                               f"{where}.drivers")
         alerts = self.get(table, "alerts", dict, where, {})

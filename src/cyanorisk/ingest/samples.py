@@ -84,10 +84,15 @@ class SampleLayout:
     chl_a_column: str | None = None
     microcystin_column: str | None = None
     comment_column: str | None = None
+    detection_limit: str | None = None
+    """What 'ND' (not detected) means, in the lab's own unit: '100 cells/mL' or
+    '100000 cells/L'."""
+    upper_limit: str | None = None
+    """What 'TNTC' (too numerous to count) means, with its unit as for ``detection_limit``."""
     detection_limit_cells_per_ml: float | None = None
-    """What 'ND' (not detected) means [cells mL-1]."""
+    """What 'ND' means [cells mL-1] (the earlier key; ``detection_limit`` names its unit)."""
     upper_limit_cells_per_ml: float | None = None
-    """What 'TNTC' (too numerous to count) means [cells mL-1]."""
+    """What 'TNTC' means [cells mL-1] (the earlier key; see ``upper_limit``)."""
     duplicates: str = DEFAULT_DUPLICATES
     """Conflicting records of one sample and taxon: keep the 'last' in file order, or 'first'."""
 
@@ -103,6 +108,17 @@ class SampleLayout:
         if self.duplicates not in DUPLICATE_POLICIES:
             raise ValueError("duplicates must be 'last' or 'first'")
         parse_hhmm(self.default_sample_time)
+        for text_key, number_key in (("detection_limit", "detection_limit_cells_per_ml"),
+                                     ("upper_limit", "upper_limit_cells_per_ml")):
+            text = getattr(self, text_key)
+            if text is None:
+                continue
+            value = limit_cells_per_ml(text, text_key)
+            given = getattr(self, number_key)
+            if given is not None and not np.isclose(given, value, rtol=1e-9):
+                raise ValueError(f"{text_key} {text!r} is {value:g} cells/mL but {number_key} "
+                                 f"says {given:g}; give one of them")
+            object.__setattr__(self, number_key, value)
 
     def named_columns(self) -> set[str]:
         return {c for c in (self.sample_id_column, self.site_column, self.sampled_date_column,
@@ -110,6 +126,29 @@ class SampleLayout:
                             self.taxon_column, self.count_column, self.unit_column,
                             self.biovolume_column, self.chl_a_column, self.microcystin_column,
                             self.comment_column) if c}
+
+
+_QUANTITY = re.compile(r"^\s*(?P<number>(?:\d[\d_,]*)?\.?\d+(?:[eE][+-]?\d+)?)\s*(?P<unit>\S.*?)\s*$")
+
+
+def limit_cells_per_ml(text: str, key: str = "detection_limit") -> float:
+    """A count limit written with its unit ('100 cells/mL', '100000 cells/L', '1e5 cells/L')
+    in cells per millilitre (1 L = 1000 mL).
+
+    Raises
+    ------
+    ValueError
+        Naming ``key`` when the text is not a number followed by cells/mL or cells/L.
+    """
+    found = _QUANTITY.match(str(text))
+    value = factor = None
+    if found:
+        factor = _unit_factor(found.group("unit"))
+        value = float(found.group("number").replace("_", "").replace(",", ""))
+    if value is None or factor is None or not value > 0:
+        raise ValueError(f"{key} {text!r} is not a count with its unit, e.g. '100 cells/mL' or "
+                         "'100000 cells/L'")
+    return value / factor
 
 
 def _unit_factor(unit: str) -> float | None:
@@ -192,13 +231,16 @@ class SampleFile:
 
 def parse_sample_file(path: str | Path, layout: SampleLayout, timezone: str, *,
                       site_id: str | None = None, bad_rows: str = DEFAULT_BAD_ROWS,
-                      earliest: date = EARLIEST_DATE) -> SampleFile:
+                      earliest: date = EARLIEST_DATE,
+                      site_aliases: Sequence[str] = ()) -> SampleFile:
     """Read one lab file into records (see :func:`read_samples`); dates before ``earliest`` go
-    to the ledger."""
+    to the ledger; a site column value among ``site_aliases`` is read as ``site_id``."""
     ledger = Ledger()
     path = Path(path)
     window = (day_number(earliest), day_number(LAST_REPRESENTABLE))
     records, n_rows, said = _read_file(path, layout, timezone, site_id, bad_rows, ledger, window)
+    if site_aliases and site_id is not None and len(records):
+        records.loc[records["site_id"].isin(list(site_aliases)), "site_id"] = site_id
     return SampleFile(path, records, n_rows, ledger.frame(), [f"{path.name}: {s}" for s in said])
 
 

@@ -24,7 +24,7 @@ import pandas as pd
 
 from cyanorisk.atomic import write_group
 from cyanorisk.config import Site
-from cyanorisk.ingest.quality import AFTER_LATEST, LEDGER_COLUMNS
+from cyanorisk.ingest.quality import AFTER_LATEST, LEDGER_COLUMNS, IngestError
 from cyanorisk.ingest.samples import (
     SampleFile,
     assemble_samples,
@@ -92,7 +92,8 @@ def sample_settings(site: Site) -> dict[str, Any]:
     layout = site.samples.parsing if site.samples else None
     return {"layout": asdict(layout) if layout else None, "timezone": site.timezone,
             "site_id": site.id, "bad_rows": site.ingest.bad_rows,
-            "earliest": str(site.ingest.earliest_date)}
+            "earliest": str(site.ingest.earliest_date),
+            "aliases": list(site.samples.site_aliases) if site.samples else []}
 
 
 def inputs_key(site: Site, digests: dict[str, str]) -> str:
@@ -125,6 +126,7 @@ def clean_site(site: Site, ws: SiteWorkspace, digests: dict[str, str], *,
                         for p in site.samples.files]
         records, smeta = assemble_samples(sample_files, site.samples.parsing, latest=latest,
                                           timezone=site.timezone)
+        require_site_samples(site, records)
         totals = sample_totals(records, site.samples.taxa)
         totals["outside_weather"] = _outside(totals, wmeta)
     summary = ingest_summary(site, wmeta, smeta, totals, key)
@@ -142,6 +144,29 @@ def clean_site(site: Site, ws: SiteWorkspace, digests: dict[str, str], *,
     _forget_unused(ws, used)
     return CleanData(weather, totals if totals is not None else empty_totals(), summary,
                      records=records)
+
+
+def require_site_samples(site: Site, records: pd.DataFrame) -> None:
+    """Refuse lab sheets whose site column never names the site: every sample would be dropped
+    and the site would look as if no result had ever been known.
+
+    Raises
+    ------
+    IngestError
+        Naming the first lab file and the site column, the ids found and the id expected, and
+        the ``site_aliases`` key that maps the lab's name to the site.
+    """
+    layout = site.samples.parsing if site.samples else None
+    if layout is None or not layout.site_column or records.empty \
+            or (records["site_id"] == site.id).any():
+        return
+    found = sorted({str(v) for v in records["site_id"].dropna()})
+    shown = ", ".join(repr(v) for v in found[:8]) + (" ..." if len(found) > 8 else "")
+    raise IngestError(site.samples.files[0],
+                      f"no sample names site {site.id!r} in column {layout.site_column!r}: the "
+                      f"sheets name {shown}; if one of them is this site, add it under "
+                      f"[sites.samples] as site_aliases = {json.dumps(found[:1])}",
+                      column=layout.site_column)
 
 
 def _dates(site: Site, latest: date | None, weather: WeatherMeta, samples) -> dict[str, Any]:
@@ -233,7 +258,8 @@ def _sample_file(site: Site, ws: SiteWorkspace, path: Path, digest: str,
     def parse() -> tuple[SampleFile, pd.DataFrame, dict]:
         parsed = parse_sample_file(path, site.samples.parsing, site.timezone, site_id=site.id,
                                    bad_rows=site.ingest.bad_rows,
-                                   earliest=site.ingest.earliest_date)
+                                   earliest=site.ingest.earliest_date,
+                                   site_aliases=site.samples.site_aliases)
         return parsed, parsed.records, {"rows_read": parsed.rows_read, "notes": parsed.notes,
                                         "rejects": parsed.rejects.to_dict("records")}
 
