@@ -225,22 +225,29 @@ def test_missing_configuration_file_exits_2(tmp_path, capsys):
 
 
 def test_check_validates_configuration_and_file_layout(tmp_path, capsys):
+    # two hours of weather and no lab: the files are fine, but nothing can be trained yet
     config = write_config(tmp_path)
-    assert main(["check", "--config", str(config)]) == 0
+    assert main(["check", "--config", str(config)]) == 3
     out = capsys.readouterr().out
-    assert f"Lake {SITE} ({SITE}): 1 weather file(s), dialect 'aws', zone Australia/Melbourne" in out
-    assert "aws.txt: 2 variable column(s) (stamps assumed to mark the start of the interval" in out
-    assert out.rstrip().endswith(f"{config}: configuration is valid")
+    assert f"Lake {SITE} ({SITE})\n  weather: 1 file(s), dialect 'aws', zone " \
+           "Australia/Melbourne, interval 30 min" in out
+    assert "aws.txt: 5 rows parsed, 1 unreadable" in out
+    assert "(bad_number 1); the first, " in out and "line 5, column 'AirT'" in out
+    assert "aws.txt: stamps assumed to mark the start of the interval" in out  # an assumption
+    assert "verdict: ingest can run; train, backtest and the outlook cannot yet" in out
+    assert out.rstrip().endswith(f"{config}: configuration is valid; some site cannot train "
+                                 "yet (see above)")
     assert not (tmp_path / "work").exists()  # check writes nothing
 
 
 def test_check_names_an_undeclared_column(tmp_path, capsys):
     config = write_config(tmp_path, files={SITE: GOOD_FILE.replace("WindSpd", "Gust")})
     assert main(["check", "--config", str(config)]) == 1
-    message = one_sentence(capsys.readouterr().err)
-    assert str(tmp_path / "raw" / SITE / "aws.txt") in message
-    assert "line 2" in message  # the header
-    assert "column 'Gust'" in message
+    out = capsys.readouterr().out
+    errors = out.split("  errors:\n", 1)[1].splitlines()[0]
+    assert errors.startswith(f"    - {tmp_path / 'raw' / SITE / 'aws.txt'}, line 2, column "
+                             "'Gust': ")  # the header line
+    assert "verdict: not ready: 1 error(s)" in out
 
 
 def test_demo_runs_end_to_end(tmp_path, capsys):
@@ -303,13 +310,13 @@ def test_check_reads_the_lab_sheets_too(demo_site, tmp_path, capsys):
     config = demo_site.write_config(tmp_path / "site.toml")
     assert main(["check", "--config", str(config)]) == 0
     out = capsys.readouterr().out
-    assert "lab file(s), layout 'merrin_lab' (wide)" in out
-    assert "tallowbark_lab.csv: 14 column(s)" in out
+    assert re.search(r"lab: \d+ file\(s\), layout 'merrin_lab' \(wide\)", out)
+    assert re.search(r"tallowbark_lab\.csv: [\d,]+ rows parsed, \d+ unreadable, [\d,]+ record", out)
     # a layout naming a column the sheets lack is refused, naming file, header line and column
     text = config.read_text(encoding="utf-8").replace('sample_id_column = "Sample"',
                                                       'sample_id_column = "Sample No"')
     config.write_text(text, encoding="utf-8")
     assert main(["check", "--config", str(config)]) == 1
-    err = capsys.readouterr().err.strip()
-    assert re.fullmatch(r"cyanorisk: \S+tallowbark_lab\S*\.csv, line 2, column 'Sample No': the "
-                        r"layout names column 'Sample No' but the header has .+", err)
+    out = capsys.readouterr().out
+    assert re.search(r"(?m)^    - \S+tallowbark_lab\S*\.csv, line 2, column 'Sample No': the "
+                     r"layout names column 'Sample No' but the header has .+$", out)

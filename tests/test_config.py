@@ -122,7 +122,7 @@ def test_demo_dialect(demo):
     assert (d.date_column, d.time_column, d.timestamp_column) == ("Date", "Time", None)
     assert d.date_order == "dmy"
     assert d.stamp_zone == "local"
-    assert d.stamp_marks == "start"
+    assert d.stamp_marks == "end"
     assert d.missing == ("", "-")
     assert d.decimal is None  # left to sniffing
     assert d.encoding == "utf-8"

@@ -472,7 +472,7 @@ def test_unchanged_files_are_not_ingested_again(tmp_path, demo_site, count_inges
     (old,) = [f for f in known if f["path"] == str(weather_dir(tmp_path) / LAST_WEATHER_FILE)]
     assert files[-1]["rows"]["read"] == old["rows"]["read"] + 2  # the site's rows, with the new two
     weather = pd.read_parquet(config.data_dir / SITE / "weather.parquet")
-    assert weather.index[-1] == pd.Timestamp("2025-01-13T19:30", tz="UTC")  # 06:30 AEDT, start-stamped
+    assert weather.index[-1] == pd.Timestamp("2025-01-13T19:00", tz="UTC")  # the half hour ending 06:30 AEDT
 
 
 def test_a_removed_file_is_ingested_away(tmp_path, demo_site, count_ingests):

@@ -277,10 +277,12 @@ def test_accept_without_a_proposal_names_the_file(demo, tmp_path, capsys):
 
 
 @pytest.mark.parametrize(("flags", "option", "words"), [
-    (["--miss-cost", "-1"], "--miss-cost", "-1 is not a cost"),
-    (["--miss-cost", "0"], "--miss-cost", "0 is not a cost"),
-    (["--target-hit-rate", "1.5"], "--target-hit-rate", "1.5 is not a hit rate"),
-    (["--target-hit-rate", "0"], "--target-hit-rate", "0 is not a hit rate"),
+    (["--miss-cost", "-1"], "--miss-cost", "'-1' is not a cost"),
+    (["--miss-cost", "0"], "--miss-cost", "'0' is not a cost"),
+    (["--miss-cost", "lots"], "--miss-cost", "'lots' is not a cost"),
+    (["--target-hit-rate", "1.5"], "--target-hit-rate", "'1.5' is not a hit rate"),
+    (["--target-hit-rate", "0"], "--target-hit-rate", "'0' is not a hit rate"),
+    (["--seasons", "2024-2018", "--miss-cost", "5"], "--seasons", "runs backwards"),
     (["--accept", "--miss-cost", "5"], "--accept", "give it alone"),
 ])
 def test_tune_refuses_a_value_it_cannot_take_in_one_sentence(demo, tmp_path, capsys, flags,

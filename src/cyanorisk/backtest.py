@@ -142,6 +142,20 @@ def walk_forward(spec: SiteSpec, table: pd.DataFrame, totals: pd.DataFrame, seas
     return BacktestResult(forecasts, scores, overall, exceedances, notes, not_replayed)
 
 
+def labelled_before(spec: SiteSpec, table: pd.DataFrame, seasons: Iterable[int]) -> dict[int, int]:
+    """Labelled issue days whose outcome (and the lab delay after it) was known before each
+    season started: what a replay of that season can learn from."""
+    X = prepare(table)
+    y = ordinal_outcome(X, label_columns(spec))
+    issue_day = pd.to_datetime(X["issue_date"])
+    ends = issue_day + pd.Timedelta(days=spec.horizon_days + spec.lab_delay_days)
+    out = {}
+    for s in seasons:
+        start = pd.Timestamp(year=int(s), month=spec.season_start_month, day=1)
+        out[int(s)] = int(((ends < start).to_numpy() & ~np.isnan(y)).sum())
+    return out
+
+
 def history_shortfall(labelled_days_before: int) -> str | None:
     """Why a season cannot be replayed for lack of history, or None when it can."""
     if labelled_days_before >= MIN_HISTORY_DAYS:

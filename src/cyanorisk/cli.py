@@ -36,9 +36,27 @@ def progress(items: Iterable, total: int, label: str) -> Iterator:
 
 
 def _config(args: argparse.Namespace, check_files: bool = True) -> Config:
+    """The configuration named by ``--config``; with ``--site ID``, only that site of it."""
+    import dataclasses
+
     from cyanorisk.config import load_config
 
-    return load_config(args.config, check_files=check_files)
+    config = load_config(args.config, check_files=check_files)
+    wanted = getattr(args, "site", None)
+    if wanted:
+        ids = [s.id for s in config.sites]
+        if wanted not in ids:
+            raise OptionError("--site", f"{wanted!r} is not a site of {config.path}; its sites "
+                                        f"are {', '.join(ids)}")
+        config = dataclasses.replace(config, sites=tuple(s for s in config.sites
+                                                         if s.id == wanted))
+    return config
+
+
+def _print_json(value) -> None:
+    import json
+
+    print(json.dumps(value, indent=2, default=str))
 
 
 def each_site(config: Config, work: Callable[[SitePipeline], int | None], label: str = "") -> int:
@@ -68,15 +86,13 @@ def worst(statuses: list[int]) -> int:
 
 def cmd_ingest(args: argparse.Namespace) -> int:
     """Ingest every site's weather and lab files; write clean tables and rejects; summarise."""
-    import json
-
     from cyanorisk.report.ingest_summary import summary_text
 
     summaries: list[dict] = []
     status = each_site(_config(args), lambda p: summaries.append(p.clean(reuse=not args.force).summary),
                        "ingest")
     if args.json:
-        print(json.dumps(summaries, indent=2, default=str))
+        _print_json(summaries)
     else:
         for summary in summaries:
             print(summary_text(summary))
@@ -116,17 +132,24 @@ def cmd_train(args: argparse.Namespace) -> int:
     return each_site(_config(args), work)
 
 
-def _report(pipeline: SitePipeline, as_of, store_url: str) -> int:
+def _report(pipeline: SitePipeline, as_of, store_url: str, out: list | None = None) -> int:
+    """Write one site's report; print its headline, or with ``out`` append its JSON document
+    and files there instead."""
     from cyanorisk.forecast import STATUS_ASSESSED, changes_since
+    from cyanorisk.report.document import report_document
     from cyanorisk.service.history import previous_from
 
     assessment = pipeline.assess(as_of)
     assessment.changes = changes_since(assessment, previous_from(
         store_url, pipeline.spec.site_id, str(assessment.as_of.date())))
     paths = pipeline.write_report(assessment)
-    print(f"{pipeline.spec.name}: {assessment.headline}")
-    for p in paths:
-        print(f"  wrote {p}")
+    if out is not None:
+        out.append({"site_id": pipeline.spec.site_id, "files": [str(p) for p in paths],
+                    "report": report_document(assessment)})
+    else:
+        print(f"{pipeline.spec.name}: {assessment.headline}")
+        for p in paths:
+            print(f"  wrote {p}")
     return 0 if assessment.status == STATUS_ASSESSED else EXIT_INSUFFICIENT
 
 
@@ -134,19 +157,40 @@ def cmd_report(args: argparse.Namespace) -> int:
     """Write each site's daily report (HTML, JSON, text) under reports/. Exit status 3 when a
     site's data were insufficient for an outlook (the report says so and is written)."""
     config = _config(args)
-    return each_site(config, lambda p: _report(p, args.as_of, config.store_url))
+    out: list | None = [] if args.json else None
+    status = each_site(config, lambda p: _report(p, args.as_of, config.store_url, out))
+    if out is not None:
+        _print_json(out)
+    return status
 
 
 def cmd_backtest(args: argparse.Namespace) -> int:
     """Walk-forward backtest of each site over past seasons; write forecasts, scores, page."""
-    return each_site(_config(args), lambda p: _backtest(p, args.seasons))
+    out: list | None = [] if args.json else None
+    status = each_site(_config(args), lambda p: _backtest(p, args.seasons, out))
+    if out is not None:
+        _print_json(out)
+    return status
 
 
-def _backtest(pipeline: SitePipeline, seasons: str | None) -> None:
-    run = pipeline.backtest(seasons, progress)
+def _backtest(pipeline: SitePipeline, seasons: str | None, out: list | None = None) -> None:
+    from cyanorisk.report.backtest_page import season_sentences
+
+    run = pipeline.backtest(seasons, progress if out is None else None)
     paths = pipeline.write_backtest(run)
     result = run.result
-    print(f"{pipeline.spec.name} ({pipeline.spec.site_id}): backtest of seasons {run.span}")
+    if out is not None:
+        out.append({"site_id": pipeline.spec.site_id, "seasons": run.span,
+                    "replayed": result.replayed,
+                    "not_replayed": {str(k): v for k, v in result.not_replayed.items()},
+                    "overall": result.overall.to_dict(orient="records"),
+                    "seasons_in_words": {title: sentences for title, sentences
+                                         in season_sentences(result, pipeline.spec.levels)},
+                    "files": [str(p) for p in paths]})
+        return
+    print(f"{pipeline.spec.name} ({pipeline.spec.site_id}): backtest of seasons {run.span}"
+          + (f" (not replayed: {', '.join(str(s) for s in sorted(result.not_replayed))})"
+             if result.not_replayed else ""))
     overall = result.overall[result.overall["source"] == "model"]
     for _, r in overall.iterrows():
         clim = result.overall[(result.overall["source"] == "climatology")
@@ -155,8 +199,6 @@ def _backtest(pipeline: SitePipeline, seasons: str | None) -> None:
               f"{r['roc_auc_high']:.3f}] (climatology {clim['roc_auc']:.3f}); Brier skill "
               f"vs climatology {r['brier_skill']:.3f} [{r['brier_skill_low']:.3f}, "
               f"{r['brier_skill_high']:.3f}]")
-    from cyanorisk.report.backtest_page import season_sentences
-
     for title, sentences in season_sentences(result, pipeline.spec.levels):
         print(f"  {title}:")
         for sentence in sentences:
@@ -180,13 +222,11 @@ def cmd_tune(args: argparse.Namespace) -> int:
         return each_site(_config(args), lambda p: _accept(p, when))
     if (args.miss_cost is None) == (args.target_hit_rate is None):
         raise ConfigError(args.config, None, "give either --miss-cost or --target-hit-rate")
-    if args.miss_cost is not None and not args.miss_cost > 0:
-        raise OptionError("--miss-cost", f"{args.miss_cost:g} is not a cost: give how many false "
-                                         "alarms one missed exceedance is worth, a number above 0")
-    if args.target_hit_rate is not None and not 0 < args.target_hit_rate <= 1:
-        raise OptionError("--target-hit-rate", f"{args.target_hit_rate:g} is not a hit rate: give "
-                                               "a share above 0 and at most 1, e.g. 0.9")
-    return each_site(_config(args), lambda p: _tune(p, args))
+    out: list | None = [] if args.json else None
+    status = each_site(_config(args), lambda p: _tune(p, args, out))
+    if out is not None:
+        _print_json(out)
+    return status
 
 
 def _accept(pipeline: SitePipeline, when: str) -> None:
@@ -197,10 +237,18 @@ def _accept(pipeline: SitePipeline, when: str) -> None:
     print(f"  wrote {path}")
 
 
-def _tune(pipeline: SitePipeline, args: argparse.Namespace) -> None:
-    run = pipeline.backtest(args.seasons, progress)
+def _tune(pipeline: SitePipeline, args: argparse.Namespace, out: list | None = None) -> None:
+    run = pipeline.backtest(args.seasons, progress if out is None else None)
     choices, problems = pipeline.tune(run, miss_cost=args.miss_cost,
                                       target_hit_rate=args.target_hit_rate)
+    if out is not None:
+        written = pipeline.write_tuning(choices, run.span) if choices else []
+        out.append({"site_id": pipeline.spec.site_id, "seasons": run.span,
+                    "proposed": {c.level: {"warn_at": c.threshold, "rule": c.rule,
+                                           "verdict": c.verdict()} for c in choices},
+                    "problems": problems, "in_force": False,
+                    "files": [str(p) for p in written]})
+        return
     print(f"{pipeline.spec.name} ({pipeline.spec.site_id}): thresholds tuned on seasons "
           f"{run.span}")
     for c in choices:
@@ -254,9 +302,13 @@ def cmd_serve(args: argparse.Namespace) -> int:
 
 def cmd_status(args: argparse.Namespace) -> int:
     """Per site: last run, its status, last level, data freshness."""
-    from cyanorisk.service.scheduler import status_lines
+    from cyanorisk.service.scheduler import site_status, status_lines
 
-    for line in status_lines(_config(args)):
+    config = _config(args)
+    if args.json:
+        _print_json(site_status(config))
+        return 0
+    for line in status_lines(config):
         print(line)
     return 0
 
@@ -274,7 +326,12 @@ def cmd_run(args: argparse.Namespace) -> int:
 
         as_of = local_today(config.sites[0], _now())
     result = run_daily(as_of, config, clock=utc_clock)
-    for o in result.sites:
+    if args.json:
+        import dataclasses
+
+        _print_json({"as_of": result.as_of, "run_id": result.run_id, "status": result.status,
+                     "sites": [dataclasses.asdict(o) for o in result.sites]})
+    for o in result.sites if not args.json else ():
         print(f"{result.as_of} {o.site_id}: {o.action} (revision {o.revision}, "
               f"{o.level or o.status}); {o.reason}")
         if o.notification:
@@ -284,13 +341,54 @@ def cmd_run(args: argparse.Namespace) -> int:
 
 
 def cmd_check(args: argparse.Namespace) -> int:
-    """Validate the configuration and the layout of every weather and lab file, without
-    ingesting."""
+    """Try everything each site will be asked to do, writing nothing: parse every file, build
+    the drivers, count the seasons; list what is wrong, what was assumed, and a verdict.
+    Exit status 1 when a site is not ready, 3 when its data cannot train a model yet."""
     config = _config(args)
-    status = each_site(config, lambda p: print("\n".join(p.check())))
-    if status == 0:
-        print(f"{config.path}: configuration is valid")
+    checks: list = []
+
+    def work(pipeline: SitePipeline) -> int:
+        found = pipeline.check()
+        checks.append(found)
+        if not args.json:
+            print(found.text())
+        return found.exit_status
+
+    status = each_site(config, work)
+    if args.json:
+        _print_json({"config": config.path, "ready": status in (0, EXIT_INSUFFICIENT),
+                     "sites": [c.as_dict() for c in checks]})
+    elif status == 0:
+        print(f"{config.path}: configuration is valid; every site is ready")
+    elif status == EXIT_INSUFFICIENT:
+        print(f"{config.path}: configuration is valid; some site cannot train yet (see above)")
+    else:
+        print(f"{config.path}: not ready; fix the errors above and check again")
     return status
+
+
+def cmd_init(args: argparse.Namespace) -> int:
+    """Draft a configuration from the user's own weather exports and lab sheets: every choice
+    with its evidence, every guess marked to confirm, site details left as blanks."""
+    from cyanorisk.draft import draft_config, write_draft
+
+    try:
+        draft = draft_config(args.weather, args.samples or ())
+    except ValueError as exc:
+        if isinstance(exc, CyanoriskError):
+            raise
+        raise OptionError("--weather", str(exc)) from None
+    out = write_draft(draft, args.out)
+    print(f"wrote {out}: a drafted configuration with {len(draft.evidence)} choice(s) read from "
+          f"the files")
+    if draft.to_confirm:
+        print(f"  to confirm ({len(draft.to_confirm)}, marked CONFIRM in the file):")
+        for line in draft.to_confirm:
+            print(f"    - {line}")
+    if draft.blanks:
+        print(f"  to fill in ({len(draft.blanks)}, marked FILL IN): {', '.join(draft.blanks)}")
+    print(f"  next: fill those in, then `cyanorisk check --config {out}`")
+    return 0
 
 
 def cmd_demo(args: argparse.Namespace) -> int:
@@ -320,59 +418,86 @@ def cmd_demo(args: argparse.Namespace) -> int:
 
 
 def build_parser() -> argparse.ArgumentParser:
-    import argparse
     from pathlib import Path
 
-    parser = argparse.ArgumentParser(
+    from cyanorisk import options
+
+    parser = options.Parser(
         prog="cyanorisk",
         description="Bloom-risk early warning for lakes and reservoirs.")
     parser.add_argument("--version", action="version", version=f"cyanorisk {__version__}")
     sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
 
-    def command(name: str, func, help_text: str, config_required: bool = True):
+    def command(name: str, func, help_text: str, config_required: bool = True,
+                json_help: str | None = None):
         p = sub.add_parser(name, help=help_text, description=help_text)
         p.add_argument("--config", type=Path, required=config_required, default=None,
                        help="site configuration (TOML)"
                             + ("" if config_required else "; default: the embedded demo"))
+        p.add_argument("--site", metavar="ID", help="act on this site only")
+        if json_help:
+            p.add_argument("--json", action="store_true", help=json_help)
         p.set_defaults(func=func)
         return p
 
     p = command("demo", cmd_demo, "generate the demo reservoir's data and run the job on it",
                 config_required=False)
-    p.add_argument("--years", type=int, default=None, help="years of data to generate")
+    p.add_argument("--years", type=options.years, default=None,
+                   help="years of data to generate (1 to 50)")
     p = command("ingest", cmd_ingest, "clean every site's weather and lab files; write them and "
-                                      "the rejects")
-    p.add_argument("--json", action="store_true", help="print the summary as JSON")
+                                      "the rejects", json_help="print the summary as JSON")
     p.add_argument("--force", action="store_true", help="ingest again even when no raw file "
                                                         "changed")
     p = command("features", cmd_features, "build the daily drivers and the training table")
     p.add_argument("--csv", action="store_true", help="also write the table as CSV")
     p = command("train", cmd_train, "fit each site's risk model and print its model card")
     p.add_argument("--no-cv", action="store_true", help="skip the cross-validation by season")
-    p = command("report", cmd_report, "write each site's daily risk report")
-    p.add_argument("--as-of", metavar="DATE", help="local date to report for (default: the last "
-                                                   "day of the weather record)")
+    p = command("report", cmd_report, "write each site's daily risk report",
+                json_help="print each report's JSON document and files")
+    p.add_argument("--as-of", metavar="DATE", type=options.day,
+                   help="local date to report for, YYYY-MM-DD (default: the last day of the "
+                        "weather record)")
     p = command("backtest", cmd_backtest, "replay past seasons: how early and how reliably it "
-                                          "would have warned")
-    p.add_argument("--seasons", metavar="YYYY-YYYY", help="season start years, e.g. 2015-2022 "
-                                                         "(default: all but the first)")
-    p = command("tune", cmd_tune, "choose the probability that raises each level")
-    p.add_argument("--seasons", metavar="YYYY-YYYY", help="seasons to tune on (default: all but "
-                                                         "the first)")
-    p.add_argument("--miss-cost", type=float, help="cost of a missed exceedance in false alarms")
-    p.add_argument("--target-hit-rate", type=float, help="smallest acceptable hit rate, e.g. 0.9")
+                                          "would have warned",
+                json_help="print the seasons replayed and the scores as JSON")
+    p.add_argument("--seasons", metavar="YYYY-YYYY", type=options.seasons,
+                   help="season start years, e.g. 2015-2022 (default: all but the first)")
+    p = command("tune", cmd_tune, "choose the probability that raises each level",
+                json_help="print the proposal as JSON")
+    p.add_argument("--seasons", metavar="YYYY-YYYY", type=options.seasons,
+                   help="seasons to tune on (default: all but the first)")
+    p.add_argument("--miss-cost", type=options.cost,
+                   help="cost of a missed exceedance in false alarms, above 0")
+    p.add_argument("--target-hit-rate", type=options.hit_rate,
+                   help="smallest acceptable hit rate, above 0 and at most 1, e.g. 0.9")
     p.add_argument("--accept", action="store_true", help="put the thresholds proposal in force")
     p = command("serve", cmd_serve, "run the daily reports on schedule until stopped")
     p.add_argument("--no-catch-up", action="store_true", help="do not run the days missed while "
                                                               "the service was down")
-    p.add_argument("--every", type=float, metavar="SECONDS", help="for trials: run every SECONDS "
-                                                                  "instead of daily")
-    p.add_argument("--as-of", metavar="DATE", help="for trials with --every: the date to assess")
-    command("status", cmd_status, "show each site's last run, level and data freshness")
-    p = command("run", cmd_run, "run the daily job once for a date and record it")
-    p.add_argument("--as-of", metavar="DATE", help="local date to assess (default: today in the "
-                                                   "first site's time zone)")
-    command("check", cmd_check, "validate the configuration and the layout of every input file")
+    p.add_argument("--every", type=options.seconds, metavar="SECONDS",
+                   help="for trials: run every SECONDS instead of daily")
+    p.add_argument("--as-of", metavar="DATE", type=options.day,
+                   help="for trials with --every: the date to assess, YYYY-MM-DD")
+    command("status", cmd_status, "show each site's last run, level and data freshness",
+            json_help="print the status as JSON")
+    p = command("run", cmd_run, "run the daily job once for a date and record it",
+                json_help="print what each site's run did as JSON")
+    p.add_argument("--as-of", metavar="DATE", type=options.day,
+                   help="local date to assess, YYYY-MM-DD (default: today in the first site's "
+                        "time zone)")
+    command("check", cmd_check, "try everything each site will be asked to do, writing nothing",
+            json_help="print the findings as JSON")
+    p = sub.add_parser("init", help="draft a configuration from your own weather and lab files",
+                       description="Draft a configuration from your own weather exports and lab "
+                                   "sheets: each choice with its evidence, each guess marked "
+                                   "CONFIRM, site details left as FILL IN blanks.")
+    p.add_argument("--weather", nargs="+", type=Path, required=True, metavar="FILE",
+                   help="the station's exports (one layout)")
+    p.add_argument("--samples", nargs="*", type=Path, default=[], metavar="FILE",
+                   help="the lab's phytoplankton sheets (one layout)")
+    p.add_argument("--out", type=Path, default=Path("site.toml"),
+                   help="where to write the draft (default: site.toml; never written over)")
+    p.set_defaults(func=cmd_init)
     return parser
 
 
@@ -381,7 +506,10 @@ def main(argv: list[str] | None = None) -> int:
     if argv == ["--version"]:  # answered before anything else is imported
         print(f"cyanorisk {__version__}")
         return 0
-    args = build_parser().parse_args(argv)
+    try:
+        args = build_parser().parse_args(argv)
+    except SystemExit as exc:  # an option refused (one sentence, status 2), or --help
+        return exc.code if isinstance(exc.code, int) else 2
     try:
         return args.func(args)
     except CyanoriskError as exc:

@@ -7,10 +7,10 @@ so that the bloom drivers carry real signal; they are typed the way people type 
 Everything here is invented for the demo and deterministic by seed. The weather is simulated on
 a half-hourly UTC grid, then exported the way a real automatic weather station's logger would
 write it, with the usual quirks (see ``../shared/DESIGN.md``): local wall-clock time with daylight
-saving, a date column and a separate time column with day-first dates, the day's last reading
-stamped 24:00, the rows of each day newest first, repeated rows, extra readings off the regular
-grid, sensor drop-outs, '-' or blank for missing values, 16-point compass directions and CALM,
-wind in km/h, and a handful of rows mangled by hand.
+saving, a date column and a separate time column with day-first dates, each reading stamped at
+the end of its interval (the day's last one 24:00), the rows of each day newest first, repeated
+rows, extra readings off the regular grid, sensor drop-outs, '-' or blank for missing values,
+16-point compass directions and CALM, wind in km/h, and a handful of rows mangled by hand.
 """
 
 from __future__ import annotations
@@ -132,7 +132,8 @@ def logger_export(weather: pd.DataFrame, seed: int) -> pd.DataFrame:
     for s in rng.choice(n - 50, size=max(1, n // 3000), replace=False):
         drop[s:s + rng.integers(1, 14)] = True
     w = w[~drop]
-    local = w.index.tz_convert(TIMEZONE)
+    step = w.index[1] - w.index[0] if len(w) > 1 else pd.Timedelta(minutes=30)
+    local = (w.index + step).tz_convert(TIMEZONE)  # stamped at the end of the interval
     wall = local.tz_localize(None)
     end_of_day = (wall.hour == 0) & (wall.minute == 0)
     day = wall.where(~end_of_day, wall - pd.Timedelta(days=1))
@@ -161,7 +162,7 @@ def logger_export(weather: pd.DataFrame, seed: int) -> pd.DataFrame:
     # off-grid extra readings (a manual poll of the logger)
     extra = out.sample(frac=0.002, random_state=seed).copy()
     minutes = rng.integers(3, 27, len(extra))
-    shifted = extra["_utc"] + pd.to_timedelta(minutes, unit="min")
+    shifted = extra["_utc"] + step + pd.to_timedelta(minutes, unit="min")
     sw = shifted.dt.tz_convert(TIMEZONE).dt.tz_localize(None)
     extra["Date"], extra["Time"] = sw.dt.strftime("%d/%m/%Y"), sw.dt.strftime("%H:%M")
     extra["_utc"], extra["_day"] = shifted, sw.dt.normalize()

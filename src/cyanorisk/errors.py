@@ -77,6 +77,12 @@ class BacktestError(CyanoriskError, ValueError):
     """A backtest that cannot be run as asked (e.g. seasons outside the data)."""
 
 
+class InsufficientDataError(CyanoriskError, ValueError):
+    """The data hold too little to fit a model (every labelled day alike, no labelled day)."""
+
+    exit_status = EXIT_INSUFFICIENT
+
+
 class NothingToReplayError(BacktestError):
     """No season asked for has enough history before it to be replayed (insufficient data)."""
 

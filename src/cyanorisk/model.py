@@ -299,6 +299,12 @@ class RiskModel:
         self.levels = levels
         self.horizon_days = horizon_days
 
+    def _outcome_words(self, k: int) -> str:
+        """Outcome k in words: 0 stays below the first level, k reaches level k at most."""
+        if k == 0:
+            return f"'stays below {self.levels[0]}'"
+        return f"'reaches {self.levels[k - 1]}'" + (" at most" if k < len(self.levels) else "")
+
     # fitting -------------------------------------------------------------------------------------
 
     def fit(self, X: pd.DataFrame, y: np.ndarray) -> RiskModel:
@@ -321,7 +327,8 @@ class RiskModel:
         present = np.unique(yl)
         if len(present) < 2:
             raise ValueError(f"all {len(yl)} labelled issue days have the same outcome "
-                             f"({present.tolist()}); a model needs both outcomes to learn from")
+                             f"({self._outcome_words(int(present[0]))}); a model needs days "
+                             "with different outcomes to learn from")
         median = np.nanmedian(Xl.to_numpy(), axis=0)
         median = np.where(np.isnan(median), 0.0, median)
         indicators = _indicator_groups(Xl)
@@ -332,8 +339,9 @@ class RiskModel:
         self.classes_ = np.arange(int(present.max()) + 1)
         missing_classes = sorted(set(self.classes_) - set(present))
         if missing_classes:
-            raise ValueError(f"no labelled issue day has outcome {missing_classes} while higher "
-                             "ones occur; the levels cannot be ordered from these data")
+            words = " or ".join(self._outcome_words(int(c)) for c in missing_classes)
+            raise ValueError(f"no labelled issue day has the outcome {words} while higher "
+                             "levels occur, so the levels cannot be ordered from these data")
         result = _fit_ordinal(Zs.to_numpy(), yl, len(self.classes_) - 1)
         k = Zs.shape[1]
         self.feature_names_in_ = list(Zs.columns)

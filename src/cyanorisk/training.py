@@ -57,6 +57,8 @@ class DriverChoice:
     """Driver asked for -> the driver standing in for it."""
     not_recorded: dict[str, str] = field(default_factory=dict)
     """Driver asked for -> the variable the station does not record."""
+    no_values: tuple[str, ...] = ()
+    """Drivers whose variable is recorded but with no window good enough for a value."""
 
     @property
     def notes(self) -> list[str]:
@@ -68,6 +70,9 @@ class DriverChoice:
         for asked, variable in self.not_recorded.items():
             out.append(f"{_label(asked)}: left out, the station records no "
                        f"{_variable_label(variable)} ({variable})")
+        for name in self.no_values:
+            out.append(f"{_label(name)}: left out, no window of the record has enough good "
+                       "readings for a value")
         return out
 
 
@@ -83,27 +88,28 @@ def _variable_label(variable: str) -> str:
 
 
 def available_drivers(asked: tuple[str, ...] | list[str], table: pd.DataFrame) -> DriverChoice:
-    """The drivers asked for that the table holds values of; a driver whose variable the
-    station does not record is replaced by its stand-in where it has one (water temperature
-    estimated from air temperature), or else left out. Never raises: a site with no usable
-    driver at all is refused later, by the fit."""
-    used, substituted, missing = [], {}, {}
+    """The drivers asked for that the table can give (see :func:`training_table`): a driver's
+    column is there when the station records its variable (the feature builder computes every
+    family it can). A driver whose variable is not recorded is replaced by its stand-in where
+    it has one (water temperature estimated from air temperature), or else left out; a column
+    without a single value is left out too. Never raises: a site with no usable driver at all
+    is refused later, by the fit."""
+    used, substituted, missing, empty = [], {}, {}, []
     for name in asked:
-        if _has_values(table, name):
+        if name not in table:
+            other = stand_in(name)
+            if other is not None and other in table:
+                substituted[name] = other
+                name = other
+            else:
+                info = lookup(name)
+                missing[name] = info.family.variable if info and info.family.variable else name
+                continue
+        if table[name].notna().any():
             used.append(name)
-            continue
-        other = stand_in(name)
-        if other is not None and _has_values(table, other):
-            used.append(other)
-            substituted[name] = other
-            continue
-        info = lookup(name)
-        missing[name] = info.family.variable if info and info.family.variable else name
-    return DriverChoice(tuple(dict.fromkeys(used)), substituted, missing)
-
-
-def _has_values(table: pd.DataFrame, name: str) -> bool:
-    return name in table and bool(table[name].notna().any())
+        else:
+            empty.append(name)
+    return DriverChoice(tuple(dict.fromkeys(used)), substituted, missing, tuple(empty))
 
 
 def label_balance(table: pd.DataFrame, horizon_days: int) -> dict[str, dict[str, int]]:

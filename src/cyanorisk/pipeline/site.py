@@ -23,10 +23,16 @@ import pandas as pd
 from cyanorisk.atomic import write_group
 from cyanorisk.backtest import BacktestResult, parse_seasons, walk_forward
 from cyanorisk.config import Config, Site
-from cyanorisk.errors import ModelFileError, NothingToReplayError
+from cyanorisk.errors import (
+    CyanoriskError,
+    InsufficientDataError,
+    ModelFileError,
+    NothingToReplayError,
+)
 from cyanorisk.features import issue_instants
 from cyanorisk.forecast import Assessment, InForce, assess, default_as_of, known_samples, lab_level
 from cyanorisk.model import SiteModels
+from cyanorisk.pipeline.check import SiteCheck, check_site
 from cyanorisk.pipeline.clean import CleanData, clean_site, file_digest
 from cyanorisk.pipeline.workspace import SiteWorkspace, read_thresholds
 from cyanorisk.spec import SiteSpec, Thresholds
@@ -95,38 +101,11 @@ class SitePipeline:
             self._digests = {str(p): file_digest(p) for p in self.raw_files()}
         return self._digests
 
-    def check(self) -> list[str]:
-        """Lines saying how each raw file's layout was resolved (declared or sniffed), without
-        ingesting anything.
-
-        Raises
-        ------
-        IngestError
-            Naming file, line and column of the first layout problem.
-        """
-        from cyanorisk.ingest.dialects import column_plan, sniff_layout
-        from cyanorisk.ingest.lines import read_text
-        from cyanorisk.ingest.samples import sniff_sheet
-
-        site = self.site
-        dialect = site.weather.parsing
-        lines = [f"{site.name} ({site.id}): {len(site.weather.files)} weather file(s), "
-                 f"dialect '{site.weather.dialect}', zone {site.timezone}"]
-        for path in site.weather.files:
-            layout = sniff_layout(read_text(path, dialect.encoding), dialect)
-            plan, ignored = column_plan(layout, path)
-            notes = "; ".join(layout.assumptions) or "layout as declared"
-            lines.append(f"  {path.name}: {len(plan)} variable column(s)"
-                         + (f", ignored {', '.join(ignored)}" if ignored else "") + f" ({notes})")
-        if site.samples is not None:
-            layout = site.samples.parsing
-            lines.append(f"  {len(site.samples.files)} lab file(s), layout '{site.samples.layout}' "
-                         f"({layout.shape})")
-            for path in site.samples.files:
-                table = sniff_sheet(read_text(path, layout.encoding), layout)
-                notes = "; ".join(table.assumptions) or "layout as declared"
-                lines.append(f"  {path.name}: {len(table.header)} column(s) ({notes})")
-        return lines
+    def check(self) -> SiteCheck:
+        """Try everything this site will be asked to do, writing nothing: every file parsed,
+        the series put on its grid, the drivers built and matched against the station, the
+        seasons counted (see :mod:`cyanorisk.pipeline.check`)."""
+        return check_site(self)
 
     # 1. clean data -----------------------------------------------------------------------------
 
@@ -157,9 +136,21 @@ class SitePipeline:
 
     def train(self, table: pd.DataFrame | None = None, *,
               cross_validation: bool = True) -> tuple[SiteModels, Path]:
-        """Fit the site's models, save them atomically, and return them with their file."""
-        models = fit_site(self.spec, self.training_table() if table is None else table,
-                          cross_validation=cross_validation)
+        """Fit the site's models, save them atomically, and return them with their file.
+
+        Raises
+        ------
+        InsufficientDataError
+            When the data cannot fit a model, saying why (nothing is written).
+        """
+        try:
+            models = fit_site(self.spec, self.training_table() if table is None else table,
+                              cross_validation=cross_validation)
+        except (ValueError, RuntimeError) as exc:
+            if isinstance(exc, CyanoriskError):
+                raise
+            raise InsufficientDataError(f"{self.spec.name} ({self.spec.site_id}): the model "
+                                        f"cannot be fitted: {exc}") from None
         path, text = self.workspace.model_text(models)
         write_group({path: lambda tmp: tmp.write_text(text, encoding="utf-8")})
         return models, path

@@ -137,27 +137,46 @@ def add_listeners(scheduler: BaseScheduler, config: Config) -> None:
     scheduler.add_listener(listen, EVENT_JOB_ERROR | EVENT_JOB_MISSED | EVENT_JOB_EXECUTED)
 
 
-def status_lines(config: Config) -> list[str]:
-    """Per site: last run, its status, last level, data freshness (from the store)."""
+def site_status(config: Config) -> dict:
+    """Per site: its last report (day, revision, status, level, the run that issued it and the
+    freshness of its data), and the last run; from the store, as a JSON-ready dict."""
     with Store(config.store_url) as store:
         runs = store.runs()
-        lines = []
+        sites = []
         for site in config.sites:
             last = store.latest_report(site.id)
-            if last is None:
-                lines.append(f"{site.name} ({site.id}): no report recorded yet")
-                continue
-            run = next((r for r in reversed(runs) if r["id"] == last.run_id), None)
-            fresh = _freshness(last.paths)
-            lines.append(f"{site.name} ({site.id}): last report for {last.as_of} (revision "
-                         f"{last.revision}), status {last.status}, level {last.level or 'none'}; "
-                         f"run {run['id'] if run else '?'} {run['status'] if run else '?'} at "
-                         f"{last.issued_at}; {fresh}")
-        if runs:
-            r = runs[-1]
-            lines.append(f"last run: {r['as_of']} started {r['started_at']}, status {r['status']}"
-                         + (f" ({r['error']})" if r["error"] else ""))
-        return lines
+            entry: dict = {"site_id": site.id, "site_name": site.name, "last_report": None}
+            if last is not None:
+                run = next((r for r in reversed(runs) if r["id"] == last.run_id), None)
+                entry["last_report"] = {
+                    "as_of": last.as_of, "revision": last.revision, "status": last.status,
+                    "level": last.level, "issued_at": last.issued_at,
+                    "run_id": run["id"] if run else None,
+                    "run_status": run["status"] if run else None,
+                    "freshness": _freshness(last.paths), "files": list(last.paths)}
+            sites.append(entry)
+        last_run = dict(runs[-1]) if runs else None
+    return {"sites": sites, "last_run": last_run}
+
+
+def status_lines(config: Config) -> list[str]:
+    """Per site: last run, its status, last level, data freshness (from the store)."""
+    status = site_status(config)
+    lines = []
+    for s in status["sites"]:
+        last = s["last_report"]
+        if last is None:
+            lines.append(f"{s['site_name']} ({s['site_id']}): no report recorded yet")
+            continue
+        lines.append(f"{s['site_name']} ({s['site_id']}): last report for {last['as_of']} "
+                     f"(revision {last['revision']}), status {last['status']}, level "
+                     f"{last['level'] or 'none'}; run {last['run_id'] or '?'} "
+                     f"{last['run_status'] or '?'} at {last['issued_at']}; {last['freshness']}")
+    r = status["last_run"]
+    if r:
+        lines.append(f"last run: {r['as_of']} started {r['started_at']}, status {r['status']}"
+                     + (f" ({r['error']})" if r["error"] else ""))
+    return lines
 
 
 def _freshness(paths: list[str]) -> str:
