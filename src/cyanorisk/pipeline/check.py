@@ -92,10 +92,11 @@ class SiteCheck:
         if self.cannot_train:
             return (f"ingest can run; train, backtest and the outlook cannot yet: "
                     f"{self.cannot_train}")
+        can = ("ingest, train, backtest and report can run" if self.seasons.get("replayable")
+               else "ingest, train and report can run; backtest has no season to replay yet")
         if warnings:
-            return (f"ready, with {warnings} warning(s) to read: ingest, train, backtest and "
-                    "report can run")
-        return "ready: ingest, train, backtest and report can run"
+            return f"ready, with {warnings} warning(s) to read: {can}"
+        return f"ready: {can}"
 
     def as_dict(self) -> dict[str, Any]:
         return {"site_id": self.site_id, "site_name": self.site_name, "ready": self.ready,
