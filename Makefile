@@ -4,7 +4,7 @@ VENV := .venv
 BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
 
-.PHONY: demo test lint bench clean
+.PHONY: demo test lint bench docs system clean
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -15,9 +15,17 @@ $(STAMP): pyproject.toml
 demo: $(STAMP)
 	$(BIN)/cyanorisk demo
 
-test: $(STAMP)
+test: $(STAMP) system
 	$(BIN)/ruff check src tests benchmarks
 	$(BIN)/python -m pytest
+
+# System packages some tests need (Chromium, PostgreSQL), through apt-get when missing.
+system:
+	@.ci/system-packages
+
+# The configuration reference, generated from the settings dataclasses.
+docs: $(STAMP)
+	$(BIN)/python -m cyanorisk.reference > docs/configuration.md
 
 lint: $(STAMP)
 	$(BIN)/ruff check src tests benchmarks

@@ -189,8 +189,11 @@ class ServiceSettings:
     smtp_host: str | None = None
     """When set, notifications are also sent by e-mail through this SMTP server."""
     smtp_port: int = 25
+    """Port of the SMTP server."""
     mail_from: str = "cyanorisk@localhost"
+    """Sender address of notification e-mails."""
     mail_to: tuple[str, ...] = ()
+    """Recipients of notification e-mails."""
     catch_up: bool = True
     """On start, run the days missed since the last recorded run."""
     misfire_grace_hours: float = 6.0

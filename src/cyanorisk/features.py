@@ -163,16 +163,24 @@ class FeatureSettings:
     """Degree-day bases [degC]; Microcystis is severely limited below about 15 degC
     (Robarts & Zohary 1987)."""
     degree_day_windows: tuple[int, ...] = (1, 7, 14, 30)
+    """Windows [d] of the degree-day drivers."""
     wind_run_windows: tuple[int, ...] = (1, 3, 7)
+    """Windows [d] of the wind-run drivers."""
     calm_windows: tuple[int, ...] = (3, 7)
+    """Windows [d] of the hours-of-calm drivers."""
     calm_threshold_ms: float = 2.0
     """Below this speed [m s-1] the surface is calm enough for scums to gather: about 2-3 m/s
     (Webster & Hutchinson 1994, from memory)."""
     longest_calm_window: int = 7
+    """Window [d] of the longest calm spell."""
     rain_windows: tuple[int, ...] = (1, 3, 7, 14)
+    """Windows [d] of the rain drivers."""
     air_temp_windows: tuple[int, ...] = (3, 7, 30)
+    """Windows [d] of the mean air temperature drivers."""
     solar_windows: tuple[int, ...] = (7,)
+    """Windows [d] of the sunshine energy drivers."""
     water_temp_windows: tuple[int, ...] = (1, 7)
+    """Windows [d] of the mean water temperature drivers (measured or estimated)."""
     water_temp_tau_days: float = 15.0
     """Time constant [d] of water temperature estimated from air temperature where the station
     records none (:func:`water_temp_from_air_c`): a value for a shallow reservoir of a few

@@ -47,13 +47,17 @@ class WeatherDialect:
     """Layout of a weather-station export. ``None`` fields are sniffed from the file."""
 
     separator: str | None = None
+    """Field separator, one character (',', ';', a tab as "\t")."""
     decimal: str | None = None
     """Decimal mark, '.' or ','."""
     encoding: str = "utf-8"
+    """Text encoding of the file ('utf-8', 'latin-1', 'utf-16')."""
     skip_lines: int | None = None
     """Preamble lines above the header."""
     date_column: str | None = None
+    """The column of dates (with time_column for the time of day)."""
     time_column: str | None = None
+    """The column of times of day (HH:MM, 00:00 to 24:00)."""
     timestamp_column: str | None = None
     """One column with date and time (ISO 8601 with or without offset, or date and time)."""
     date_order: str | None = None

@@ -60,30 +60,49 @@ class SampleLayout:
     shape: str = "long"
     """'long' (a row per taxon per sample) or 'wide' (a row per sample, a column per taxon)."""
     separator: str | None = None
+    """Field separator, one character."""
     decimal: str | None = None
+    """Decimal mark, '.' or ','."""
     encoding: str = "utf-8"
+    """Text encoding of the file."""
     skip_lines: int | None = None
+    """Preamble lines above the header."""
     date_order: str | None = None
+    """'dmy', 'mdy' or 'ymd'."""
     sample_id_column: str | None = None
     """Without it, a sample is identified by its site and sampling time."""
     site_column: str | None = None
+    """The column naming the site of each sample; without it every sample belongs to the site
+    that reads the sheet."""
     sampled_date_column: str = "sampled"
+    """The column of sampling dates."""
     sampled_time_column: str | None = None
+    """The column of sampling times (HH:MM); blank or missing: default_sample_time."""
     default_sample_time: str = "10:00"
     """Local time assumed when no sampling time is given (flagged 'time_assumed')."""
     reported_date_column: str | None = None
+    """The column of the dates results were reported; without it a result counts as known
+    lab_delay_days after sampling."""
     depth_column: str | None = None
+    """The column of sampling depths [m]."""
     taxon_column: str | None = None
+    """Long: the column naming the taxon."""
     count_column: str | None = None
+    """Long: the column of counts (numbers, '<100', '>200000', 'ND', 'TNTC')."""
     unit_column: str | None = None
+    """Long: the column of count units ('cells/mL', 'cells/L')."""
     count_unit: str = "cells/mL"
     """Unit of counts when neither the header nor a unit column says: 'cells/mL' or 'cells/L'."""
     taxa_columns: tuple[str, ...] | None = None
     """Wide: the taxon columns; None takes every column not named elsewhere."""
     biovolume_column: str | None = None
+    """The column of cyanobacterial biovolume [mm3 L-1]."""
     chl_a_column: str | None = None
+    """The column of chlorophyll-a [ug L-1]."""
     microcystin_column: str | None = None
+    """The column of total microcystins [ug L-1]."""
     comment_column: str | None = None
+    """The column of comments, kept with each record."""
     detection_limit: str | None = None
     """What 'ND' (not detected) means, in the lab's own unit: '100 cells/mL' or
     '100000 cells/L'."""
