@@ -318,10 +318,6 @@ def test_weather_round_trips_through_the_station_dialect(files, weather):
     assert data["rain_mm"].sum() == pytest.approx(sim["rain_mm"].sum(), rel=0.02)
 
 
-@pytest.mark.xfail(strict=True, reason="the weather ingest honours a numeric missing marker "
-                   "(-9999) only in columns it reads as numbers: in the wind direction column, "
-                   "and in every column of a file with a non-number elsewhere, -9999 is flagged "
-                   "out_of_range instead of missing (the value is NaN either way)")
 def test_sensor_fault_marker_reads_as_missing(weather):
     data, _ = weather
     for var in ("wind_speed_ms", "wind_dir_deg"):

@@ -707,3 +707,19 @@ def test_read_weather_gap_direction_across_north():
     _assert_values(data, "wind_dir_deg", [350.0, 0.0, 10.0])
     assert _flags(data, "wind_dir_deg") == ["ok", "filled", "ok"]
     _assert_account(meta, read=2, kept=2)
+
+
+def test_a_numeric_missing_marker_is_missing_in_text_columns_too(tmp_path):
+    # -9999 is a common sensor-fault code (common practice, no source). In a column of compass
+    # names, or written as -9999.0, it is the declared marker all the same: missing, not an
+    # out-of-range reading.
+    path = tmp_path / "w.csv"
+    path.write_text("timestamp,wind_speed_ms,wind_dir_deg\n"
+                    "2024-01-01T00:00,3.0,NNE\n"
+                    "2024-01-01T00:30,-9999.0,-9999\n"
+                    "2024-01-01T01:00,oops,SW\n", encoding="utf-8")
+    data, meta = read_weather(path, WeatherDialect(missing=("", "-9999")), "30min", "UTC",
+                              bad_rows="reject")
+    assert data["wind_dir_deg_flag"].tolist()[:2] == ["ok", "missing"]
+    assert data["wind_speed_ms_flag"].tolist()[1] == "missing"
+    assert meta.rejects["reason"].tolist() == ["bad_number"]  # 'oops' only

@@ -473,8 +473,13 @@ def _parse_values(raw: RawTable, col: str, spec: ColumnSpec, d: WeatherDialect,
         text = text.str.replace(",", ".", regex=False)
     num = np.array(pd.to_numeric(text, errors="coerce"), dtype=np.float64)
     state = np.zeros(len(uniques), dtype=np.int8)
-    invalid = np.isnan(num)
     missing = set(d.missing)
+    marker = _missing_numbers(d.missing)
+    # a marker is missing whether written as declared or as the same number ('-9999.0')
+    is_marker = np.isin(num, list(marker)) if marker else np.zeros(len(num), dtype=bool)
+    is_marker |= np.array([u.strip() in missing for u in uniques], dtype=bool)
+    num[is_marker] = np.nan
+    invalid = np.isnan(num) & ~is_marker
     is_dir = spec.variable == "wind_dir_deg"
     for i in np.flatnonzero(invalid):
         u = uniques[i]
@@ -492,6 +497,17 @@ def _parse_values(raw: RawTable, col: str, spec: ColumnSpec, d: WeatherDialect,
     problems.add(invalid[codes], col, "bad_number", column,
                  f"'{{raw}}' is not {expected} or a missing-value marker")
     return num[codes], state[codes]
+
+
+def _missing_numbers(markers: Sequence[str]) -> set[float]:
+    """The markers that are numbers (-9999, 9999.9): sensor-fault codes."""
+    out = set()
+    for m in markers:
+        try:
+            out.add(float(m))
+        except ValueError:
+            continue
+    return {v for v in out if np.isfinite(v)}
 
 
 def _concat(parts: list[Rows]) -> Rows:
