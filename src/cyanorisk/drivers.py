@@ -198,6 +198,7 @@ def lookup(name: str) -> DriverInfo | None:
             param = float(fields["param"]) if "param" in fields else None
             canonical = family.name(window, param)
             label = family.label.format(window=window, param=_g(param))
+            label = label.replace("last 1 days", "last day")  # one day, in words
             return DriverInfo(canonical, family, window, param, label)
     return None
 

@@ -24,7 +24,7 @@ import numpy as np
 import pandas as pd
 
 from cyanorisk.align import lab_record, last_known
-from cyanorisk.drivers import Effect, lookup
+from cyanorisk.drivers import Effect, lookup, stand_in
 from cyanorisk.features import FeatureBuilder, issue_instants
 from cyanorisk.levels import (
     CENSOR_COLUMNS,
@@ -52,6 +52,18 @@ HISTORY_DRIVERS = ("water_temp_mean_c_7d", "degree_days_20c_7d", "wind_run_km_1d
                    "rain_mm_1d")
 """Drivers the report plots over its history."""
 TOXINS = ("microcystin_ug_per_l", "cylindrospermopsin_ug_per_l")
+
+
+def history_drivers(X: pd.DataFrame) -> list[str]:
+    """The drivers of :data:`HISTORY_DRIVERS` the table has values of, each replaced by its
+    stand-in (water temperature estimated from air temperature) where the station lacks it."""
+    out = []
+    for col in HISTORY_DRIVERS:
+        for name in (col, stand_in(col)):
+            if name is not None and name in X and X[name].notna().any():
+                out.append(name)
+                break
+    return out
 
 
 @dataclass
@@ -610,8 +622,8 @@ def assess(spec: SiteSpec, models: SiteModels, weather: pd.DataFrame, totals: pd
     history = pd.DataFrame({"issue_date": pd.to_datetime(X["issue_date"])})
     for n in names:
         history[n] = probs[n].to_numpy() if probs is not None else np.nan
-    for col in HISTORY_DRIVERS:
-        history[col] = X[col].to_numpy() if col in X else np.nan
+    for col in history_drivers(X):
+        history[col] = X[col].to_numpy()
     return Assessment(
         spec=spec, as_of=day, issue=issue, status=status, reasons=reasons,
         headline=_headline(spec, status, reasons, lab, forecast, basis),

@@ -14,9 +14,11 @@ import html
 import json
 from typing import Any
 
+import numpy as np
 import pandas as pd
 
-from cyanorisk.forecast import HISTORY_DRIVERS, STATUS_ASSESSED, STATUS_NONE, Assessment
+from cyanorisk.drivers import driver_label
+from cyanorisk.forecast import STATUS_ASSESSED, STATUS_NONE, Assessment
 from cyanorisk.levels import MEASURE_UNITS, MEASURE_WORDS
 from cyanorisk.report.document import report_document
 from cyanorisk.report.figures import data_uri, new_figure
@@ -53,9 +55,11 @@ def figures(a: Assessment, c: dict[str, Any]) -> dict[str, str]:
         fig, ax = new_figure(8, 2.6)
         probability_plot(a.history, scheme.names, c["forecast"]["warn_at"], xlim, colours, ax=ax)
         out["probability"] = data_uri(fig)
-    fig, axes = new_figure(8, 6, len(HISTORY_DRIVERS), 1, sharex=True)
-    drivers_plot(a.history, list(HISTORY_DRIVERS), xlim, axes)
-    out["drivers"] = data_uri(fig)
+    shown = [c for c in a.history.columns if c != "issue_date" and c not in scheme.names]
+    if shown:
+        fig, axes = new_figure(8, 1.2 * len(shown), len(shown), 1, sharex=True)
+        drivers_plot(a.history, shown, xlim, np.atleast_1d(axes))
+        out["drivers"] = data_uri(fig)
     return out
 
 
@@ -221,7 +225,8 @@ def _drivers_section(c: dict[str, Any]) -> str:
     left_out = c["model"].get("left_out") or []
     dropped = ("<p class='small'>Left out of the model because their fitted effect ran against "
                "the direction the literature gives them: "
-               + e(", ".join(d["driver"] for d in left_out)) + ".</p>" if left_out else "")
+               + e("; ".join(driver_label(d["driver"]) for d in left_out)) + ".</p>"
+               if left_out else "")
     notes = c["model"].get("driver_notes") or []
     station = ("<p class='small'>What this station does not record: "
                + e("; ".join(notes)) + ".</p>" if notes else "")
@@ -247,11 +252,14 @@ def render_html(a: Assessment) -> str:
         prob = (f'<img alt="Chance of reaching each level, day by day" src="{figs["probability"]}">'
                 if "probability" in figs else
                 '<p class="note">No outlook plot: the data are insufficient for an outlook.</p>')
+        shown = ", ".join(driver_label(c) for c in a.history.columns
+                          if c != "issue_date" and c not in a.spec.levels)
+        drivers = (f'<img alt="Weather drivers: {e(shown)}" src="{figs["drivers"]}">'
+                   if "drivers" in figs else "")
         plots = f"""<section id="plots"><h2>Plots of the last {a.spec.history_days} days</h2>
 <img alt="Lab counts on a log scale with the level thresholds" src="{figs['counts']}">
 {prob}
-<img alt="Weather drivers: water temperature, degree-days, wind run, calm hours, rain"
- src="{figs['drivers']}"></section>"""
+{drivers}</section>"""
     weather_age = ("n/a" if fr["weather_age_days"] is None
                    else f"{duration(fr['weather_age_days'])} before the issue")
     o = c["observed"]
