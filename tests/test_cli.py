@@ -92,10 +92,13 @@ def outputs(folder: Path, site_id: str = SITE) -> dict[str, Path]:
 
 
 def files_under(folder: Path, cache: bool = False) -> list[str]:
-    """Every file under ``folder``, hidden temporary files included; parsed raw files kept in a
+    """Every file under ``folder``, hidden temporary files included, but the site's lock file
+    (``.run.lock``, taken by every command that writes for a site); parsed raw files kept in a
     site's ``cache/`` folder only with ``cache=True``."""
+    if not folder.exists():
+        return []
     return sorted(str(p.relative_to(folder)) for p in folder.rglob("*")
-                  if p.is_file() and (cache or p.parent.name != "cache"))
+                  if p.is_file() and p.name != ".run.lock" and (cache or p.parent.name != "cache"))
 
 
 CLEAN_FILES = ["ingest_summary.json", "weather.parquet", "weather_rejects.csv"]
@@ -157,8 +160,7 @@ def test_bad_row_with_stop_policy_exits_1_naming_file_line_and_column(tmp_path, 
     assert f"column '{BAD_COLUMN}'" in message
     assert f"'{BAD_VALUE}'" in message
     assert captured.out == ""
-    work = tmp_path / "work"  # no output, no half-written output, no temporary files
-    assert (files_under(work) if work.exists() else []) == []
+    assert files_under(tmp_path / "work") == []  # no output, half-written or temporary
 
 
 def test_a_bad_row_on_one_site_stops_that_site_only(tmp_path, capsys):
@@ -303,7 +305,7 @@ def test_real_program_exits_1_on_a_bad_row_with_stop_policy(tmp_path):
     assert done.returncode == 1
     message = one_sentence(done.stderr)
     assert f"line {BAD_LINE}, column '{BAD_COLUMN}'" in message
-    assert not (tmp_path / "work").exists()
+    assert files_under(tmp_path / "work") == []
 
 
 def test_check_reads_the_lab_sheets_too(demo_site, tmp_path, capsys):

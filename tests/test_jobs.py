@@ -33,7 +33,7 @@ from cyanorisk.config import load_config
 from cyanorisk.forecast import STATUS_NONE
 from cyanorisk.pipeline import site as site_module
 from cyanorisk.service import jobs
-from cyanorisk.service.jobs import RunLockedError, run_daily, run_lock, sha256_of
+from cyanorisk.service.jobs import RunLockedError, run_daily, sha256_of, site_lock
 from cyanorisk.service.store import Store
 
 SITE = "tallowbark"
@@ -300,27 +300,40 @@ def test_the_store_records_why_a_site_failed(tmp_path, demo_site):
     assert cause in bad.reason
 
 
-def test_a_failing_revision_names_what_changed(tmp_path, demo_site):
+def test_a_failed_rerun_keeps_the_days_report_and_names_what_changed(tmp_path, demo_site):
     path = make_config(tmp_path, demo_site, copy_data=True)
     clock = Clock()
     (o1,) = run_daily(RISE_DAY, load_config(path), clock=clock).sites
-    assert (o1.action, o1.status) == ("issued", "assessed")
+    assert (o1.action, o1.status, o1.level) == ("issued", "assessed", ALERT1)
+    issued = {p: Path(p).read_bytes() for p in o1.paths}
     corrupt(weather_dir(tmp_path) / LAST_WEATHER_FILE)
     config = load_config(path)
     (o2,) = run_daily(RISE_DAY, config, clock=clock).sites
-    assert (o2.action, o2.revision, o2.status) == ("failed", 2, STATUS_NONE)
+    # the rerun failed: the Vigilance report issued for the day stays, never downgraded
+    assert (o2.action, o2.revision, o2.status, o2.level) == ("failed", 1, "assessed", ALERT1)
+    assert "revision 1, stays" in o2.reason
+    assert "file gone" not in o2.reason  # every file is still there
+    assert f"changed file {LAST_WEATHER_FILE}" in o2.reason
+    assert {p: Path(p).read_bytes() for p in o1.paths} == issued
     with opened(config) as store:
-        reason = store.latest_report(SITE, RISE_DAY).reason
-    assert "file gone" not in reason  # every file is still there
-    assert f"changed file {LAST_WEATHER_FILE}" in reason
+        assert [r.revision for r in store.reports(SITE, RISE_DAY)] == [1]
+        run = store.runs()[-1]
+        assert run["status"] == "failed" and run["error"].startswith(f"{SITE}: ")
+    # a day without a report of its own gets 'no assessment today', with the reason
+    (o3,) = run_daily(NEXT_DAY, config, clock=clock).sites
+    assert (o3.action, o3.revision, o3.status) == ("failed", 1, STATUS_NONE)
 
 
 # ---------------------------------------------------------------------------------------------
 # Crash between the report files and the store; the lock
 # ---------------------------------------------------------------------------------------------
 
+class Killed(BaseException):
+    """The process killed: not an error any handler may catch and go on from."""
+
+
 class CrashingRecord:
-    """Store.record_report that raises once each time it is armed, as a crash would."""
+    """Store.record_report that dies once each time it is armed, as a kill would."""
 
     def __init__(self) -> None:
         self.real = Store.record_report
@@ -331,7 +344,7 @@ class CrashingRecord:
         if self.armed:
             self.armed = False
             self.lost.append(report)
-            raise OSError("injected crash before the store was written")
+            raise Killed("injected crash before the store was written")
         return self.real(store, report)
 
 
@@ -357,10 +370,10 @@ def test_a_crash_between_files_and_store_is_repaired(tmp_path, demo_site, monkey
 
     # 1. a crash on the first report of a day
     crash.armed = True
-    with pytest.raises(OSError, match="injected crash"):
+    with pytest.raises(Killed, match="injected crash"):
         run_daily(RISE_DAY, config, clock=clock)
     (lost,) = crash.lost
-    assert (lost.as_of, lost.revision) == (RISE_DAY, 1)
+    assert lost.as_of == RISE_DAY
     assert {p: Path(p).read_bytes() for p in low.paths} == low_files  # the previous report: intact
     assert_whole(config, lost.paths, RISE_DAY)
     with opened(config) as store:
@@ -373,14 +386,15 @@ def test_a_crash_between_files_and_store_is_repaired(tmp_path, demo_site, monkey
         (rec,) = store.reports(SITE, RISE_DAY)
     assert rec.paths == lost.paths
     assert assert_whole(config, rec.paths, RISE_DAY)["forecast"]["level"] == rec.level == ALERT1
-    assert sorted(p.name for p in config.outbox.iterdir()) == [f"{SITE}_{RISE_DAY}_r1.eml"]
+    (eml,) = config.outbox.iterdir()  # one notice, though its report was issued twice
+    assert eml.name.startswith(f"{SITE}_{RISE_DAY}_") and eml.suffix == ".eml"
 
     # 2. a crash on a new revision of the same day
     (config.models_dir / f"{SITE}.thresholds.toml").write_text(THRESHOLDS, encoding="utf-8")
     crash.armed = True
-    with pytest.raises(OSError, match="injected crash"):
+    with pytest.raises(Killed, match="injected crash"):
         run_daily(RISE_DAY, config, clock=clock)
-    assert [(r.as_of, r.revision) for r in crash.lost] == [(RISE_DAY, 1), (RISE_DAY, 2)]
+    assert [r.as_of for r in crash.lost] == [RISE_DAY, RISE_DAY]
     assert_whole(config, rec.paths, RISE_DAY)
     with opened(config) as store:
         assert [r.revision for r in store.reports(SITE, RISE_DAY)] == [1]
@@ -392,25 +406,43 @@ def test_a_crash_between_files_and_store_is_repaired(tmp_path, demo_site, monkey
     assert {p: Path(p).read_bytes() for p in low.paths} == low_files
 
 
-def test_the_lock_refuses_a_second_run(tmp_path, demo_site):
-    config = load_config(make_config(tmp_path, demo_site))
-    with run_lock(config) as lock:
-        assert lock == config.data_dir / ".cyanorisk-run.lock"
-        with pytest.raises(RunLockedError, match=re.escape(str(lock))):
-            run_daily(RISE_DAY, config, clock=Clock())
-    # refused before anything was touched
-    assert not (config.data_dir / "cyanorisk.db").exists()
-    assert not (config.reports_dir / SITE).exists()
-    with run_lock(config) as again:  # and released with the holder
-        assert again == lock
+def test_a_site_held_by_another_run_is_locked_and_the_others_go_on(tmp_path, demo_site):
+    extra, _ = second_site(tmp_path, "missing model")
+    config = load_config(make_config(tmp_path, demo_site, extra=extra))
+    first = config.sites[0]
+    with site_lock(config, first) as lock:
+        assert lock.path == config.data_dir / SITE / ".run.lock"
+        result = run_daily(RISE_DAY, config, clock=Clock())
+    outcomes = {o.site_id: o for o in result.sites}
+    assert outcomes[SITE].action == "locked"
+    assert "another cyanorisk run holds the lock" in outcomes[SITE].reason
+    # the other site was tried (and failed for a reason of its own: it has no model)
+    assert outcomes["second"].action == "failed" and "no model" in outcomes["second"].reason
+    assert result.status == "failed"
+    assert not (config.reports_dir / SITE).exists()  # nothing written for the held site
+    with site_lock(config, first):  # and released with the holder
+        pass
 
 
-def test_the_lock_holds_across_threads(tmp_path, demo_site):
+def test_ingest_respects_the_lock_a_run_takes(tmp_path, demo_site, capsys):
+    from cyanorisk.cli import main
+
+    path = make_config(tmp_path, demo_site)
+    config = load_config(path)
+    with site_lock(config, config.sites[0]):
+        assert main(["ingest", "--config", str(path)]) == 4
+    (line,) = capsys.readouterr().err.strip().splitlines()
+    assert line.startswith("cyanorisk: ") and "another cyanorisk run holds the lock" in line
+    assert main(["ingest", "--config", str(path)]) == 0  # free again
+
+
+def test_the_site_lock_holds_across_threads(tmp_path, demo_site):
     config = load_config(make_config(tmp_path, demo_site))
+    site = config.sites[0]
     held, release, errors = threading.Event(), threading.Event(), []
 
     def holder():
-        with run_lock(config):
+        with site_lock(config, site):
             held.set()
             release.wait(10)
 
@@ -419,7 +451,7 @@ def test_the_lock_holds_across_threads(tmp_path, demo_site):
     try:
         assert held.wait(10)
         with pytest.raises(RunLockedError, match="another cyanorisk run holds the lock"):
-            with run_lock(config):
+            with site_lock(config, site):
                 errors.append("entered")
     finally:
         release.set()
@@ -551,11 +583,15 @@ def test_a_level_rise_notifies_once(tmp_path, demo_site):
 
     (rise,) = run_daily(RISE_DAY, config, clock=clock).sites
     assert (rise.action, rise.level) == ("issued", ALERT1)
-    eml = config.outbox / f"{SITE}_{RISE_DAY}_r1.eml"
-    assert rise.notification == str(eml)
+    eml = Path(rise.notification)
+    assert eml.parent == config.outbox and eml.name.startswith(f"{SITE}_{RISE_DAY}_")
     assert outbox_files(config) == [eml.name]
     msg = email.message_from_bytes(eml.read_bytes(), policy=email.policy.default)
     assert msg["Subject"] == f"cyanorisk: Tallowbark Reservoir rose to {ALERT1} ({RISE_DAY})"
+    assert msg["Message-ID"].startswith(f"<{SITE}.{RISE_DAY}.")  # a stable id to spot repeats
+    with opened(config) as store:
+        (notice,) = store.notices(SITE)
+    assert (notice.state, notice.attempts, notice.path) == ("sent", 1, str(eml))
     body = msg.get_content()
     assert f"Previous report: {LOW}." in body
     assert "Merrin Falls Water and the regional health unit" in body  # who decides

@@ -483,7 +483,7 @@ def test_status_after_a_failed_day(tmp_path, demo_site, capsys):
     assert main(["status", "--config", str(path)]) == 0
     lines = capsys.readouterr().out.splitlines()
     assert re.fullmatch(rf"Tallowbark Reservoir \(tallowbark\): last report for {RUN_DAY} \(revision 1\), "
-                        r"status no assessment today, level below Vigilance; run 1 partial at \S+; "
+                        r"status no assessment today, level below Vigilance; run 1 failed at \S+; "
                         r"no weather, last sample n/a old at issue", lines[0])
-    assert re.fullmatch(rf"last run: {RUN_DAY} started \S+, status partial \(tallowbark: .+\)", lines[1])
+    assert re.fullmatch(rf"last run: {RUN_DAY} started \S+, status failed \(tallowbark: .+\)", lines[1])
 

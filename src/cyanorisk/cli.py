@@ -59,17 +59,24 @@ def _print_json(value) -> None:
     print(json.dumps(value, indent=2, default=str))
 
 
-def each_site(config: Config, work: Callable[[SitePipeline], int | None], label: str = "") -> int:
-    """Do ``work`` for every site, one after another; a site that fails is told in one sentence
-    on stderr and the others go on. Returns the exit status: the worst of the sites' (a data or
-    configuration problem before an insufficient-data report)."""
+def each_site(config: Config, work: Callable[[SitePipeline], int | None], label: str = "", *,
+              lock: bool = True) -> int:
+    """Do ``work`` for every site, one after another, each under the site's lock (the one the
+    daily job takes; ``lock=False`` for commands that only read); a site that fails, or whose
+    lock another run holds, is told in one sentence on stderr and the others go on. Returns the
+    exit status: the worst of the sites' (a data or configuration problem before an
+    insufficient-data report)."""
+    from contextlib import nullcontext
+
     from cyanorisk.pipeline import SitePipeline
+    from cyanorisk.service.locks import site_lock
 
     statuses = [0]
     sites = config.sites
     for site in progress(sites, len(sites), label) if label else sites:
         try:
-            statuses.append(work(SitePipeline.of(config, site)) or 0)
+            with site_lock(config.data_dir, site.id) if lock else nullcontext():
+                statuses.append(work(SitePipeline.of(config, site)) or 0)
         except CyanoriskError as exc:
             print(f"cyanorisk: {exc}", file=sys.stderr)
             statuses.append(exc.exit_status)
@@ -354,7 +361,7 @@ def cmd_check(args: argparse.Namespace) -> int:
             print(found.text())
         return found.exit_status
 
-    status = each_site(config, work)
+    status = each_site(config, work, lock=False)
     if args.json:
         _print_json({"config": config.path, "ready": status in (0, EXIT_INSUFFICIENT),
                      "sites": [c.as_dict() for c in checks]})

@@ -24,7 +24,7 @@ import filelock
 
 from cyanorisk.errors import LockError, RunLockedError
 
-__all__ = ["LockError", "LockHeldError", "RunLock"]
+__all__ = ["LockError", "LockHeldError", "RunLock", "site_lock"]
 
 
 class LockHeldError(RunLockedError):
@@ -94,3 +94,10 @@ class RunLock:
     def __exit__(self, kind: type[BaseException] | None, exc: BaseException | None,
                  tb: TracebackType | None) -> None:
         self.release()
+
+
+def site_lock(data_dir: str | os.PathLike[str], site_id: str) -> RunLock:
+    """One installation's lock of one site: a file in the site's data folder. Runs, ingests and
+    other commands that write for a site take it, so that one of them at a time writes its
+    files; other sites go on."""
+    return RunLock(Path(data_dir) / site_id / ".run.lock")

@@ -130,8 +130,13 @@ def add_listeners(scheduler: BaseScheduler, config: Config) -> None:
         detail = (f"scheduled for {event.scheduled_run_time}" if event.code == EVENT_JOB_MISSED
                   else f"{type(event.exception).__name__}: {event.exception}")
         log.error("%s %s: %s", site_id, what, detail)
+        scheduled = event.scheduled_run_time
+        try:  # the run was for the site's local date at its scheduled time
+            day = local_today(config.site(site_id), scheduled)
+        except KeyError:
+            day = str(scheduled.date())
         with Store(config.store_url) as store:
-            run_id = store.start_run(str(event.scheduled_run_time.date()), when)
+            run_id = store.start_run(day, when, site_id=site_id)
             store.end_run(run_id, when, what, f"{site_id}: {detail}")
 
     scheduler.add_listener(listen, EVENT_JOB_ERROR | EVENT_JOB_MISSED | EVENT_JOB_EXECUTED)
