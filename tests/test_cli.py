@@ -217,7 +217,7 @@ def test_configuration_error_exits_2_naming_the_key(tmp_path, capsys, edit, key)
     message = one_sentence(captured.err)
     assert f"{config}: key '{key}'" in message
     assert captured.out == ""
-    assert not (tmp_path / "work").exists()
+    assert files_under(tmp_path / "work") == []
 
 
 def test_missing_configuration_file_exits_2(tmp_path, capsys):

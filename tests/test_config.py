@@ -365,9 +365,15 @@ def test_dialect_errors_name_the_dialect(tmp_path, kwargs, fragment):
     assert fragment in str(err)
 
 
-def test_weather_pattern_that_matches_nothing(tmp_path):
+def test_weather_pattern_that_matches_nothing_fails_that_site_when_used(tmp_path):
+    from cyanorisk.pipeline import SitePipeline
+
     path = write(tmp_path, site_toml(files='["stations/lake_*.csv"]'))
-    err = config_error(path, check_files=True)
+    config = load_config(path)  # the other sites of the file can still run
+    (err,) = config.sites[0].problems
+    with pytest.raises(ConfigError) as raised:
+        SitePipeline.of(config, config.sites[0]).digests()
+    assert raised.value is err
     key = "sites[0].weather.files"
     assert (err.path, err.key) == (str(path), key)
     assert_one_sentence(str(err), path, key)

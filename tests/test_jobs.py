@@ -288,6 +288,15 @@ def test_a_failing_site_does_not_stop_another(tmp_path, demo_site, problem):
         assert [r["status"] for r in store.runs()] == ["partial", "partial"]
 
 
+def test_a_site_whose_files_match_nothing_fails_alone(tmp_path, demo_site):
+    extra = SECOND_SITE.format(pattern="nowhere/*.txt")
+    config = load_config(make_config(tmp_path, demo_site, extra=extra))
+    good, bad = run_daily(RISE_DAY, config, clock=Clock()).sites
+    assert (good.site_id, good.action, good.level) == (SITE, "issued", ALERT1)
+    assert (bad.site_id, bad.action) == ("second", "failed")
+    assert "key 'sites[1].weather.files'" in bad.reason and "no file matches" in bad.reason
+
+
 def test_the_store_records_why_a_site_failed(tmp_path, demo_site):
     extra, cause = second_site(tmp_path, "missing model")
     config = load_config(make_config(tmp_path, demo_site, extra=extra))

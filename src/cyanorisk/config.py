@@ -159,6 +159,9 @@ class Site:
     override tuned thresholds."""
     spec: SiteSpec | None = None
     """What the core computes with, built once from the settings above."""
+    problems: tuple[ConfigError, ...] = field(default=(), compare=False, repr=False)
+    """Problems of this site alone (a file pattern that matches nothing): they fail the site
+    when it is used, and the other sites go on."""
 
     def alert_scheme(self) -> Scheme:
         """The site's scheme (a preset or a custom one), restricted to its measures."""
@@ -448,8 +451,9 @@ class _Reader:
             if not isinstance(pattern, str):
                 raise self.fail(key, "expected a list of file paths or patterns")
             found = sorted(Path(p) for p in glob.glob(str(self.path(pattern))))
-            if check_files and not found:
-                raise self.fail(key, f"no file matches {pattern!r} (looked in {self.root})")
+            if check_files and not found:  # this site's problem: kept for when it is used
+                self.site_problems.append(
+                    self.fail(key, f"no file matches {pattern!r} (looked in {self.root})"))
             found_all.extend(found)
         return tuple(patterns), tuple(found_all)
 
@@ -500,6 +504,7 @@ class _Reader:
         if not isinstance(table, dict):
             raise self.fail(where, f"expected a table, got {type(table).__name__}")
         self.keys(table, _SITE, where)
+        self.site_problems: list[ConfigError] = []
         tz = self.get(table, "timezone", str, where)
         try:
             zoneinfo.ZoneInfo(tz)
@@ -584,7 +589,7 @@ class _Reader:
             weather=WeatherSource(tuple(patterns), tuple(files), dialect, period, dialects[dialect]),
             samples=samples, drivers=drivers, scheme=scheme, measures=measures, custom_scheme=custom,
             model=model, authority=self.get(table, "authority", str, where, DEFAULT_AUTHORITY),
-            ingest=self.ingest, warn_at=warn_at)
+            ingest=self.ingest, warn_at=warn_at, problems=tuple(self.site_problems))
         try:
             return dataclasses.replace(site, spec=dataclasses.replace(
                 site.build_spec(), warn_at=warn_at,

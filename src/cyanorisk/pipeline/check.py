@@ -125,6 +125,9 @@ def check_site(pipeline) -> SiteCheck:
     """Check one site (a :class:`cyanorisk.pipeline.SitePipeline`) end to end, writing nothing."""
     site = pipeline.site
     report = SiteCheck(site.id, site.name)
+    for problem in site.problems:
+        report.add("error", str(problem), "check the pattern; it is read from the "
+                                          "configuration's root")
     latest = site.ingest.latest_date or pipeline.run_day + timedelta(days=1)
     weather = _check_weather(site, report, latest)
     records = _check_samples(site, report, latest)
@@ -147,8 +150,8 @@ def _check_weather(site, report: SiteCheck, latest) -> pd.DataFrame | None:
                         f"'{site.weather.dialect}', zone {site.timezone}, interval "
                         f"{_interval_text(site.interval)}")
     if not site.weather.files:
-        report.add("error", "no weather file matches [sites.weather] files",
-                   "check the patterns; they are read from the configuration's root")
+        if not site.problems:
+            report.add("error", "no weather file is configured ([sites.weather] files)")
         return None
     parsed = []
     for path in site.weather.files:
@@ -273,8 +276,8 @@ def _check_samples(site, report: SiteCheck, latest) -> pd.DataFrame | None:
     report.lines.append(f"lab: {len(source.files)} file(s), layout '{source.layout}' "
                         f"({layout.shape})")
     if not source.files:
-        report.add("error", "no lab file matches [sites.samples] files",
-                   "check the patterns; they are read from the configuration's root")
+        if not site.problems:
+            report.add("error", "no lab file is configured ([sites.samples] files)")
         return None
     files = []
     for path in source.files:

@@ -96,7 +96,15 @@ class SitePipeline:
         return list(self.site.weather.files) + samples
 
     def digests(self) -> dict[str, str]:
-        """Content hashes of the raw files (computed once per pipeline)."""
+        """Content hashes of the raw files (computed once per pipeline).
+
+        Raises
+        ------
+        ConfigError
+            When a file pattern of the site matches nothing (this site fails, not the others).
+        """
+        if self.site.problems:
+            raise self.site.problems[0]
         if self._digests is None:
             self._digests = {str(p): file_digest(p) for p in self.raw_files()}
         return self._digests
