@@ -66,6 +66,17 @@ class DemoSite:
         shutil.copytree(self.config.data_dir / self.site.id, Path(data_dir) / self.site.id,
                         ignore=shutil.ignore_patterns(".*"))
 
+    def copy_model(self, models_dir: Path, data_dir: Path) -> None:
+        """Copy the fitted model into another installation's models folder, with the signing key
+        it was signed with into that installation's data folder (model files verify only under
+        their installation's key)."""
+        from cyanorisk.integrity import key_path
+
+        Path(models_dir).mkdir(parents=True, exist_ok=True)
+        shutil.copy2(self.model_file, Path(models_dir) / self.model_file.name)
+        Path(data_dir).mkdir(parents=True, exist_ok=True)
+        shutil.copy2(key_path(self.config.data_dir), key_path(data_dir))
+
     def write_config(self, path: Path, **dirs: Path) -> Path:
         """A copy of the demo configuration at ``path`` that reads the demo's data, with
         ``data_dir``, ``reports_dir`` or ``models_dir`` moved to the (absolute) paths given."""

@@ -85,8 +85,7 @@ def make_config(tmp: Path, demo_site, *, copy_data: bool = False, extra: str = "
     if not copy_data:  # the same raw files as the session's: start with its clean tables
         demo_site.seed(tmp / "work")
     models = tmp / "models"
-    models.mkdir()
-    shutil.copy2(demo_site.model_file, models / demo_site.model_file.name)
+    demo_site.copy_model(models, tmp / "work")
     path = demo_site.write_config(tmp / "cyanorisk.toml", data_dir=tmp / "work",
                                   reports_dir=tmp / "reports", models_dir=models)
     text = path.read_text(encoding="utf-8")
@@ -707,3 +706,36 @@ def test_a_rise_is_mailed_to_the_configured_server(tmp_path, demo_site, smtp_ser
     assert len(handler.envelopes) == 1
     assert len(connections) == 1
 
+
+
+def test_an_undelivered_notice_is_shown_by_status_and_sent_by_the_next_run(
+        tmp_path, demo_site, smtp_server, capsys):
+    from cyanorisk.cli import main
+
+    controller, handler = smtp_server
+    closed = free_port()  # nothing listens here: the first delivery fails
+    service = (f'\n[service]\nsmtp_host = "127.0.0.1"\nsmtp_port = {closed}\n'
+               'mail_from = "cyanorisk@example.org"\nmail_to = ["officer@example.org"]\n')
+    path = make_config(tmp_path, demo_site, extra=service)
+    config = load_config(path)
+    (o,) = run_daily(RISE_DAY, config, clock=Clock()).sites
+    assert (o.action, o.level) == ("issued", ALERT1)  # the report stands though the mail failed
+    with opened(config) as store:
+        (notice,) = store.pending_notices(SITE)
+    assert (notice.state, notice.attempts) == ("failed", 1)
+    capsys.readouterr()
+    assert main(["status", "--config", str(path)]) == 0
+    out = capsys.readouterr().out
+    assert "notice not delivered yet (failed, 1 attempt(s); last error:" in out
+    assert f"rose to {ALERT1}" in out
+
+    path.write_text(path.read_text(encoding="utf-8").replace(
+        f"smtp_port = {closed}", f"smtp_port = {controller.port}"), encoding="utf-8")
+    config = load_config(path)
+    run_daily(NEXT_DAY, config, clock=Clock())  # the next run retries the outbox first
+    (envelope,) = handler.envelopes
+    got = email.message_from_bytes(envelope.original_content, policy=email.policy.default)
+    kept = email.message_from_bytes(Path(notice.path).read_bytes(), policy=email.policy.default)
+    assert got["Message-ID"] == kept["Message-ID"]  # the same message, not a new one
+    with opened(config) as store:
+        assert store.pending_notices(SITE) == []

@@ -335,16 +335,20 @@ def saved(tmp_path):
     count = CountModel(("a", "b", "c")).fit(X, np.where(np.isnan(y), np.nan, y + 2.5))
     clim = ClimatologyModel(("level 1", "level 2")).fit(dates, y)
     path = tmp_path / "lake.json"
-    path.write_text(bundle_text(SiteModels("lake", risk, count, clim, {})), encoding="utf-8")
+    path.write_text(bundle_text(SiteModels("lake", risk, count, clim, {}), KEY), encoding="utf-8")
     return path, X, dates, (risk, count, clim)
+
+
+KEY = bytes(range(32))
+"""A signing key for the tests (an installation makes its own at random)."""
 
 
 def test_json_round_trip_gives_identical_predictions(saved):
     path, X, dates, (risk, count, clim) = saved
     payload = json.loads(path.read_text(encoding="utf-8"))
-    assert (payload["format"], payload["format_version"]) == ("cyanorisk-model", 2)
+    assert (payload["format"], payload["format_version"]) == ("cyanorisk-model", 3)
     assert payload["cyanorisk_version"] == cyanorisk.__version__
-    loaded = read_bundle(path)
+    loaded = read_bundle(path, KEY)
     assert loaded.site_id == "lake"
     risk2, count2, clim2 = loaded.risk, loaded.count, loaded.climatology
     pd.testing.assert_frame_equal(risk2.predict_proba(X), risk.predict_proba(X), check_exact=True)
@@ -369,7 +373,7 @@ def test_a_file_from_another_version_is_refused_naming_file_and_versions(saved):
     path = saved[0]
     edit(path, lambda p: p.update(cyanorisk_version="0.0.1"))
     with pytest.raises(ModelFileError) as info:
-        read_bundle(path)
+        read_bundle(path, KEY)
     message = str(info.value)
     assert message.startswith(f"{path}: ")
     assert "written by cyanorisk 0.0.1" in message
@@ -381,10 +385,10 @@ def test_a_file_of_another_format_version_is_refused(saved):
     path = saved[0]
     edit(path, lambda p: p.update(format_version=1))
     with pytest.raises(ModelFileError, match=r"\(format 1\)"):
-        read_bundle(path)
+        read_bundle(path, KEY)
 
 
-def test_a_file_edited_by_hand_is_refused_by_its_checksum(saved):
+def test_a_file_edited_by_hand_is_refused_by_its_signature(saved):
     path = saved[0]
 
     def nudge(payload):
@@ -392,8 +396,63 @@ def test_a_file_edited_by_hand_is_refused_by_its_checksum(saved):
 
     edit(path, nudge)
     with pytest.raises(ModelFileError) as info:
-        read_bundle(path)
-    assert str(info.value).startswith(f"{path}: the checksum does not match the content")
+        read_bundle(path, KEY)
+    assert str(info.value).startswith(f"{path}: the signature does not match")
+
+
+def test_an_edit_with_a_recomputed_plain_hash_cannot_forge_the_signature(saved):
+    # HMAC-SHA256 (RFC 2104) needs the key: a SHA-256 of the edited body, or an HMAC under
+    # any other key, does not verify.
+    import hashlib
+    import hmac
+
+    from cyanorisk.model import _signed_text
+
+    path = saved[0]
+
+    def forge(payload):
+        payload["body"]["risk"]["coef"] = [0.0 for _ in payload["body"]["risk"]["coef"]]
+        text = _signed_text(payload["body"], payload["cyanorisk_version"])
+        payload["signature"] = "hmac-sha256:" + hmac.new(b"guess", text, hashlib.sha256).hexdigest()
+
+    edit(path, forge)
+    with pytest.raises(ModelFileError, match="the signature does not match"):
+        read_bundle(path, KEY)
+    with pytest.raises(ModelFileError, match="has no model-signing key"):
+        read_bundle(path, None)
+
+
+@pytest.mark.parametrize(("change", "words"), [
+    (lambda b: b.pop("count"), "'body.count' is missing"),
+    (lambda b: b["risk"].update(coef=["0.1", "0.2"]), "'body.risk.coef' is not a list of numbers"),
+    (lambda b: b["risk"].update(horizon_days="seven"), "'body.risk.horizon_days' is not a whole"),
+])
+def test_a_signed_but_malformed_file_is_refused_before_use(saved, change, words):
+    # the body is re-signed with the right key: only the shape check can catch it
+    from cyanorisk.integrity import signature
+    from cyanorisk.model import _signed_text
+
+    path = saved[0]
+
+    def malform(payload):
+        change(payload["body"])
+        payload["signature"] = signature(KEY, _signed_text(payload["body"],
+                                                            payload["cyanorisk_version"]))
+
+    edit(path, malform)
+    with pytest.raises(ModelFileError) as info:
+        read_bundle(path, KEY)
+    assert words in str(info.value) and "retrain" in str(info.value)
+
+
+def test_a_pickle_named_json_is_refused_in_one_sentence(tmp_path):
+    import pickle
+
+    path = tmp_path / "lake.json"
+    path.write_bytes(pickle.dumps({"coef": [1.0, 2.0]}))
+    with pytest.raises(ModelFileError) as info:
+        read_bundle(path, KEY)
+    assert str(info.value).startswith(f"{path}: not a cyanorisk model file (not text")
 
 
 @pytest.mark.parametrize(("text", "problem"), [
@@ -405,7 +464,7 @@ def test_a_file_that_is_not_a_model_is_refused(tmp_path, text, problem):
     path = tmp_path / "other.json"
     path.write_text(text, encoding="utf-8")
     with pytest.raises(ModelFileError) as info:
-        read_bundle(path)
+        read_bundle(path, KEY)
     assert str(info.value).startswith(f"{path}: {problem}")
 
 

@@ -18,7 +18,6 @@ from __future__ import annotations
 import dataclasses
 import json
 import re
-import shutil
 import signal
 import subprocess
 import sys
@@ -64,8 +63,7 @@ def make_config(tmp: Path, demo_site, extra: str = "", seed: bool = True) -> Pat
     if seed:
         demo_site.seed(tmp / "work")
     models = tmp / "models"
-    models.mkdir()
-    shutil.copy2(demo_site.model_file, models / demo_site.model_file.name)
+    demo_site.copy_model(models, tmp / "work")
     path = demo_site.write_config(tmp / "cyanorisk.toml", data_dir=tmp / "work",
                                   reports_dir=tmp / "reports", models_dir=models)
     if extra:
@@ -455,10 +453,13 @@ def test_serve_then_status_then_run(tmp_path, demo_site, capsys):
 
 def test_status_before_any_run(tmp_path, demo_site, capsys):
     path = make_config(tmp_path, demo_site, seed=False)
-    assert not load_config(path).data_dir.exists()  # a new installation: nothing has run yet
+    store = load_config(path).data_dir / "cyanorisk.db"
+    assert not store.exists()  # a new installation: nothing has run yet
     assert main(["status", "--config", str(path)]) == 0
-    assert capsys.readouterr().out.splitlines() == [
-        "Tallowbark Reservoir (tallowbark): no report recorded yet"]
+    lines = capsys.readouterr().out.splitlines()
+    assert lines[0] == "Tallowbark Reservoir (tallowbark): no report recorded yet"
+    assert f"no store at {store}" in lines[1] and "check data_dir" in lines[1]
+    assert not store.exists()  # status reads only: a mistyped data_dir creates nothing
 
 
 def test_a_missed_first_run_is_recorded(tmp_path, demo_site, monkeypatch):

@@ -45,7 +45,7 @@ from cyanorisk.errors import ModelFileError
 from cyanorisk.version import __version__
 
 FORMAT = "cyanorisk-model"
-FORMAT_VERSION = 2
+FORMAT_VERSION = 3
 """Version 2: driver names of the glossary (``calm_h_7d``); version 1 files are refused with the
 advice to retrain."""
 
@@ -626,45 +626,106 @@ def fingerprint(table: pd.DataFrame) -> str:
     return h.hexdigest()
 
 
-def _checksum(body: dict[str, Any], version: str) -> str:
-    return hashlib.sha256(json.dumps(body | {"_version": version}, sort_keys=True,
-                                     allow_nan=True).encode()).hexdigest()
+def _signed_text(body: dict[str, Any], version: str) -> bytes:
+    return json.dumps(body | {"_version": version}, sort_keys=True, allow_nan=True).encode()
 
 
-def bundle_text(models: SiteModels) -> str:
-    """The JSON text of a model file (format, version, checksum and the models)."""
+def bundle_text(models: SiteModels, key: bytes) -> str:
+    """The JSON text of a model file: format, version, the models and their signature
+    (HMAC-SHA256 under the installation's ``key``, see :mod:`cyanorisk.integrity`)."""
+    from cyanorisk.integrity import signature
+
     body = models.to_dict()
     payload = {"format": FORMAT, "format_version": FORMAT_VERSION,
                "cyanorisk_version": __version__, "body": body,
-               "checksum": _checksum(body, __version__)}
+               "signature": signature(key, _signed_text(body, __version__))}
     return json.dumps(payload, indent=1, allow_nan=True)
 
 
-def read_bundle(path: Path) -> SiteModels:
-    """Read a model file, refusing another version, an altered file or a file of another kind.
+_NUMBERS = "numbers"
+_BODY_SCHEMA: dict[str, Any] = {
+    "site_id": str, "card": dict, "normals": dict,
+    "risk": {"drivers": [str], "levels": [str], "horizon_days": int, "feature_names": [str],
+             "coef": _NUMBERS, "coef_se": _NUMBERS, "cuts": _NUMBERS, "classes": _NUMBERS,
+             "median": _NUMBERS, "mean": _NUMBERS, "scale": _NUMBERS, "indicators": dict,
+             "loglike": float, "n_train": int, "n_unlabelled": int, "class_counts": dict,
+             "left_out": list},
+    "count": {"drivers": [str], "coverage": float, "median": _NUMBERS, "params": _NUMBERS,
+              "cov": list, "resid_var": float, "df_resid": float, "t_quantile": float,
+              "n_train": int},
+    "climatology": {"levels": [str], "window_days": int, "rates": list},
+}
+"""The parts of a model file's body and their kinds (checked before any is used)."""
+
+
+def _is_number(v: Any) -> bool:
+    return isinstance(v, (int, float)) and not isinstance(v, bool)
+
+
+def _body_problem(value: Any, schema: Any, where: str) -> str | None:
+    """The first place where ``value`` does not have the shape of ``schema``, or None."""
+    if isinstance(schema, dict):
+        if not isinstance(value, dict):
+            return f"'{where}' is not a table"
+        for key, inner in schema.items():
+            if key not in value:
+                return f"'{where}.{key}' is missing".replace("'.", "'")
+            problem = _body_problem(value[key], inner, f"{where}.{key}")
+            if problem:
+                return problem
+        return None
+    if schema == _NUMBERS:
+        ok = isinstance(value, list) and all(_is_number(v) or v is None for v in value)
+        return None if ok else f"'{where}' is not a list of numbers"
+    if isinstance(schema, list):
+        ok = isinstance(value, list) and all(isinstance(v, schema[0]) for v in value)
+        return None if ok else f"'{where}' is not a list of {schema[0].__name__}"
+    if schema is float:
+        return None if _is_number(value) or value is None else f"'{where}' is not a number"
+    if schema is int:
+        ok = isinstance(value, int) and not isinstance(value, bool)
+        return None if ok else f"'{where}' is not a whole number"
+    return None if isinstance(value, schema) else f"'{where}' is not a {schema.__name__}"
+
+
+def read_bundle(path: Path, key: bytes | None) -> SiteModels:
+    """Read a model file, refusing another version, an altered or foreign file (its signature
+    does not verify under this installation's ``key``), a malformed one, or a file of another
+    kind.
 
     Raises
     ------
     ModelFileError
         With one sentence naming the file and the problem.
     """
+    from cyanorisk.integrity import verify
+
+    retrain = "retrain with `cyanorisk train`"
     try:
         payload = json.loads(Path(path).read_text(encoding="utf-8"))
-    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise ModelFileError(f"{path}: not a readable model file ({exc})") from None
+    except UnicodeDecodeError:
+        raise ModelFileError(f"{path}: not a cyanorisk model file (not text; a model file is "
+                             f"JSON): {retrain}") from None
+    except (OSError, json.JSONDecodeError) as exc:
+        raise ModelFileError(f"{path}: not a readable model file ({exc}): {retrain}") from None
     if not isinstance(payload, dict) or payload.get("format") != FORMAT:
         raise ModelFileError(f"{path}: not a cyanorisk model file")
     if payload.get("format_version") != FORMAT_VERSION or \
             payload.get("cyanorisk_version") != __version__:
         raise ModelFileError(f"{path}: written by cyanorisk {payload.get('cyanorisk_version')} "
                              f"(format {payload.get('format_version')}); this is cyanorisk "
-                             f"{__version__} (format {FORMAT_VERSION}): retrain with "
-                             "`cyanorisk train`")
+                             f"{__version__} (format {FORMAT_VERSION}): {retrain}")
     body = payload.get("body")
-    if not isinstance(body, dict) or payload.get("checksum") != _checksum(
-            body, payload["cyanorisk_version"]):
-        raise ModelFileError(f"{path}: the checksum does not match the content; the file was "
-                             "altered after it was saved: retrain with `cyanorisk train`")
+    if key is None:
+        raise ModelFileError(f"{path}: this installation has no model-signing key (it is kept "
+                             f"in the data folder), so the file cannot be verified: {retrain}")
+    if not isinstance(body, dict) or not verify(key, _signed_text(body, __version__),
+                                                payload.get("signature")):
+        raise ModelFileError(f"{path}: the signature does not match: the file was altered after "
+                             f"it was saved, or made by another installation: {retrain}")
+    problem = _body_problem(body, _BODY_SCHEMA, "body")
+    if problem is not None:
+        raise ModelFileError(f"{path}: the model file is malformed ({problem}): {retrain}")
     try:
         return SiteModels.from_dict(body)
     except (KeyError, TypeError, ValueError) as exc:

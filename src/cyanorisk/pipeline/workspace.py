@@ -11,6 +11,7 @@ Layout (``<site>`` is the site's id)::
     data_dir/<site>/training_table.parquet   written by `cyanorisk features` (and .csv)
     data_dir/<site>/cache/                   parsed raw files, by content hash
     data_dir/<site>/.run.lock                one run at a time for this site
+    data_dir/model-signing.key               the key model files are signed with (mode 0600)
     models_dir/<site>.json                   the fitted models (JSON, checksummed)
     models_dir/<site>.thresholds.toml        tuned warning thresholds
     reports_dir/<site>/<site>_<date>.html    the daily report (.json, .txt beside it)
@@ -26,6 +27,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 from cyanorisk.errors import ModelFileError
+from cyanorisk.integrity import installation_key, key_path
 from cyanorisk.spec import Thresholds
 
 if TYPE_CHECKING:
@@ -126,7 +128,12 @@ class SiteWorkspace:
             hint = f" --config {config_hint}" if config_hint else ""
             raise ModelFileError(f"{path}: no model for site '{self.site_id}'; run `cyanorisk "
                                  f"train{hint}` first")
-        models = read_bundle(path)
+        try:
+            key = installation_key(self.data_dir, create=False)
+        except OSError as exc:
+            raise ModelFileError(f"{key_path(self.data_dir)}: the model-signing key cannot be "
+                                 f"read ({exc.strerror or exc})") from None
+        models = read_bundle(path, key)
         if models.site_id != self.site_id:
             raise ModelFileError(f"{path}: this model belongs to site '{models.site_id}', "
                                  f"not '{self.site_id}'")
@@ -136,7 +143,7 @@ class SiteWorkspace:
         """Where the models go and their file's text (written by the pipeline, atomically)."""
         from cyanorisk.model import bundle_text
 
-        return self.model_file, bundle_text(models)
+        return self.model_file, bundle_text(models, installation_key(self.data_dir, create=True))
 
     def load_thresholds(self, levels: list[str]) -> Thresholds:
         """Warning thresholds of the site: the accepted tuned ones when a thresholds file exists

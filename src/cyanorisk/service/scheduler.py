@@ -25,6 +25,7 @@ from apscheduler.triggers.cron import CronTrigger
 from apscheduler.triggers.interval import IntervalTrigger
 
 from cyanorisk.config import Config, Site, load_config
+from cyanorisk.errors import StoreError
 from cyanorisk.service.jobs import RunResult, run_daily, utc_clock
 from cyanorisk.service.store import Store
 from cyanorisk.timeofday import parse_hhmm
@@ -144,13 +145,27 @@ def add_listeners(scheduler: BaseScheduler, config: Config) -> None:
 
 def site_status(config: Config) -> dict:
     """Per site: its last report (day, revision, status, level, the run that issued it and the
-    freshness of its data), and the last run; from the store, as a JSON-ready dict."""
-    with Store(config.store_url) as store:
+    freshness of its data), its undelivered notices, and the last run; from the store, as a
+    JSON-ready dict. Reads only: a missing store is said (``store`` is None), never created."""
+    try:
+        store = Store(config.store_url, create=False)
+    except StoreError as exc:
+        if "no store at" not in str(exc):
+            raise
+        return {"store": None, "store_note": f"{exc}; check data_dir if runs were expected",
+                "sites": [{"site_id": s.id, "site_name": s.name, "last_report": None,
+                           "pending_notices": []} for s in config.sites], "last_run": None}
+    with store:
         runs = store.runs()
         sites = []
         for site in config.sites:
             last = store.latest_report(site.id)
-            entry: dict = {"site_id": site.id, "site_name": site.name, "last_report": None}
+            entry: dict = {"site_id": site.id, "site_name": site.name, "last_report": None,
+                           "pending_notices": [
+                               {"message_id": n.message_id, "subject": n.subject,
+                                "state": n.state, "attempts": n.attempts,
+                                "last_error": n.last_error}
+                               for n in store.pending_notices(site.id)]}
             if last is not None:
                 run = next((r for r in reversed(runs) if r["id"] == last.run_id), None)
                 entry["last_report"] = {
@@ -161,7 +176,7 @@ def site_status(config: Config) -> dict:
                     "freshness": _freshness(last.paths), "files": list(last.paths)}
             sites.append(entry)
         last_run = dict(runs[-1]) if runs else None
-    return {"sites": sites, "last_run": last_run}
+    return {"store": store.shown, "sites": sites, "last_run": last_run}
 
 
 def status_lines(config: Config) -> list[str]:
@@ -170,6 +185,11 @@ def status_lines(config: Config) -> list[str]:
     lines = []
     for s in status["sites"]:
         last = s["last_report"]
+        for n in s["pending_notices"]:
+            lines.append(f"{s['site_name']} ({s['site_id']}): notice not delivered yet "
+                         f"({n['state']}, {n['attempts']} attempt(s)"
+                         + (f"; last error: {n['last_error']}" if n["last_error"] else "")
+                         + f"): {n['subject']}")
         if last is None:
             lines.append(f"{s['site_name']} ({s['site_id']}): no report recorded yet")
             continue
@@ -177,6 +197,8 @@ def status_lines(config: Config) -> list[str]:
                      f"(revision {last['revision']}), status {last['status']}, level "
                      f"{last['level'] or 'none'}; run {last['run_id'] or '?'} "
                      f"{last['run_status'] or '?'} at {last['issued_at']}; {last['freshness']}")
+    if status["store"] is None:
+        lines.append(status["store_note"])
     r = status["last_run"]
     if r:
         lines.append(f"last run: {r['as_of']} started {r['started_at']}, status {r['status']}"
