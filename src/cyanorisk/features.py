@@ -102,14 +102,12 @@ def water_temp_from_air_c(air_c: np.ndarray, step_h: float, tau_days: float) -> 
     >>> float(np.round(water_temp_from_air_c(air, 1.0, 15.0)[-1], 3))
     16.321
     """
-    from scipy.signal import lfilter
-
-    air = pd.Series(np.asarray(air_c, dtype=float)).ffill().bfill().to_numpy()
-    if not len(air) or np.isnan(air[0]):
+    air = pd.Series(np.asarray(air_c, dtype=float)).ffill().bfill()
+    if not len(air) or np.isnan(air.iloc[0]):
         return np.full(len(air), np.nan)
     alpha = 1.0 - np.exp(-step_h / (24.0 * tau_days))
-    out, _ = lfilter([alpha], [1.0, alpha - 1.0], air, zi=[(1.0 - alpha) * air[0]])
-    return out
+    # Tw[0] = Ta[0]; Tw[i] = (1 - alpha) Tw[i-1] + alpha Ta[i]: an unadjusted exponential mean
+    return air.ewm(alpha=alpha, adjust=False).mean().to_numpy()
 
 
 def wind_at_2m(speed_ms: np.ndarray, height_m: float) -> np.ndarray:
