@@ -411,7 +411,64 @@ def test_missing_config_file(tmp_path):
 
 def test_a_folder_is_not_a_config_file(tmp_path):
     err = config_error(tmp_path)
-    assert str(err) == f"{tmp_path}: no such configuration file"
+    assert_one_sentence(str(err), tmp_path, None)
+    assert "this is a folder, not a configuration file" in str(err)
+
+
+def test_a_config_that_is_not_utf8_names_line_and_byte(tmp_path):
+    # TOML v1.0.0: "A TOML file must be a valid UTF-8 encoded Unicode document."
+    path = tmp_path / "site.toml"
+    path.write_bytes(site_toml().replace('name = "Lake"', 'name = "Lac é"').encode("latin-1"))
+    err = config_error(path)
+    assert_one_sentence(str(err), path, None)
+    line = site_toml().splitlines().index('name = "Lake"') + 1
+    assert f"line {line}, byte 13 is not UTF-8 (byte 0xe9)" in str(err)
+
+
+def test_a_config_with_nul_bytes_names_the_line_and_prints_no_nul(tmp_path):
+    path = tmp_path / "site.toml"
+    path.write_bytes(b'root = "."\n\x00\x00\n')
+    err = config_error(path)
+    assert_one_sentence(str(err), path, None)
+    assert "line 2 holds a NUL byte" in str(err) and "\x00" not in str(err)
+
+
+@pytest.mark.parametrize(("text", "key"), [
+    pytest.param(site_toml().replace('name = "Lake"', 'name = "Lake\\nBcc: x@example.org"'),
+                 "sites[0].name", id="line-break-in-name"),
+    pytest.param(site_toml(site='authority = "Water\\r\\nBoard"'), "sites[0].authority",
+                 id="line-break-in-authority"),
+])
+def test_text_that_reaches_mail_headers_is_one_line(tmp_path, text, key):
+    path = write(tmp_path, text)
+    err = config_error(path)
+    assert_one_sentence(str(err), path, key)
+    assert "must be one line of text" in str(err)
+
+
+@pytest.mark.parametrize("key, line", [
+    ("service.mail_to[1]", 'mail_to = ["a@example.org", "b@example.org\\nBcc: c@example.org"]'),
+    ("service.mail_from", 'mail_from = "a@example.org\\n"'),
+])
+def test_a_mail_address_with_a_line_break_is_refused(tmp_path, key, line):
+    path = write(tmp_path, site_toml(top=f"[service]\n{line}"))
+    err = config_error(path)
+    assert_one_sentence(str(err), path, key)
+    assert "an e-mail address cannot hold a line break" in str(err)
+
+
+@pytest.mark.parametrize("site_id", ["../outside", "a/b", "lake one", "lake.2", ""])
+def test_site_ids_are_letters_digits_underscore_and_hyphen(tmp_path, site_id):
+    path = write(tmp_path, site_toml(site_id=site_id))
+    err = config_error(path)
+    assert_one_sentence(str(err), path, "sites[0].id")
+    assert "is not a usable site id" in str(err)
+
+
+def test_a_workspace_refuses_an_id_that_would_leave_its_folders(tmp_path):
+    from cyanorisk.pipeline.workspace import SiteWorkspace
+    with pytest.raises(ValueError, match="not a usable site id"):
+        SiteWorkspace("../x", tmp_path / "d", tmp_path / "m", tmp_path / "r", tmp_path / "o")
 
 
 @pytest.mark.parametrize(

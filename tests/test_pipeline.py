@@ -13,6 +13,7 @@ import subprocess
 import sys
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 import pytest
 
@@ -159,6 +160,23 @@ def test_a_changed_setting_parses_every_file_again(own_copy, parses, demo_site):
     again = pipeline_of(own_copy).clean()
     assert not again.reused
     assert sorted(parses) == sorted(p.name for p in demo_site.site.weather.files)  # lab files kept
+
+
+def test_a_changed_unit_in_the_configuration_makes_new_clean_tables(own_copy, demo_site):
+    # The clean tables depend on the settings that shaped them: a wind unit corrected from
+    # km/h to m/s must not leave tables made under the old one.
+    first = pipeline_of(own_copy).clean()
+    text = own_copy.read_text(encoding="utf-8")
+    own_copy.write_text(text.replace('WindSpd = { variable = "wind_speed_ms", unit = "km/h" }',
+                                     'WindSpd = { variable = "wind_speed_ms", unit = "m/s" }'),
+                        encoding="utf-8")
+    again = pipeline_of(own_copy).clean()
+    assert not again.reused
+    # 1 km/h = 1000 m / 3600 s (SI): read as m/s, every speed is 3.6 times what it was
+    ratio = (again.weather["wind_speed_ms"] / first.weather["wind_speed_ms"]).dropna()
+    ratio = ratio[first.weather["wind_speed_ms"].reindex(ratio.index) > 0]
+    assert len(ratio) > 1000
+    np.testing.assert_allclose(ratio.to_numpy(), 3.6, rtol=1e-9)
 
 
 def test_the_ingest_summary_is_kept_beside_the_clean_tables(demo_site):

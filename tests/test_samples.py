@@ -287,6 +287,50 @@ def test_header_unit_cells_per_ml_is_not_converted(tmp_path):
     assert meta.account.as_dict()["kept"] == 1
 
 
+def test_a_taxon_column_without_a_unit_refuses_the_sheet_naming_the_column_and_both_fixes(
+        tmp_path):
+    # A column with no unit beside cells/L columns was read as cells/mL: 1000 times too high.
+    path = tmp_path / "mixed.csv"
+    path.write_text("Sample,Date,Microcystis (cells/L),Aphanizomenon\n"
+                    "X1,2024-06-05,1500000,3000000\n", encoding="utf-8")
+    layout = SampleLayout(shape="wide", separator=",", skip_lines=0, date_order="ymd",
+                          sample_id_column="Sample", sampled_date_column="Date")
+    with pytest.raises(IngestError) as err:
+        read_samples(path, layout, TZ, site_id="s", bad_rows="reject")
+    e = err.value
+    assert (e.path, e.line, e.column) == (str(path), 1, "Aphanizomenon")
+    assert "'Aphanizomenon (cells/mL)'" in str(e) and 'count_unit = "cells/mL"' in str(e)
+
+
+def test_a_declared_count_unit_is_used_for_a_column_without_one(tmp_path):
+    path = tmp_path / "mixed.csv"
+    path.write_text("Sample,Date,Microcystis (cells/mL),Aphanizomenon\n"
+                    "X1,2024-06-05,1500,3000\n", encoding="utf-8")
+    layout = SampleLayout(shape="wide", separator=",", skip_lines=0, date_order="ymd",
+                          sample_id_column="Sample", sampled_date_column="Date",
+                          count_unit="cells/L")
+    records, _ = read_samples(path, layout, TZ, site_id="s", bad_rows="reject")
+    check_records(records, {
+        ("X1", "Microcystis"): (1500.0, "=", "time_assumed", "2024-06-05 08:00"),
+        # 3000 cells/L / 1000 = 3 cells/mL (1 L = 1000 mL, SI)
+        ("X1", "Aphanizomenon"): (3.0, "=", f"{CONV},time_assumed", "2024-06-05 08:00"),
+    })
+
+
+def test_a_long_row_with_a_blank_unit_and_no_declared_unit_goes_to_the_ledger(tmp_path):
+    path = tmp_path / "long.csv"
+    path.write_text("Sample,Date,Taxon,Count,Unit\n"
+                    "X1,2024-06-05,Microcystis,1500,cells/mL\n"
+                    "X2,2024-06-12,Microcystis,1500,\n", encoding="utf-8")
+    layout = SampleLayout(shape="long", separator=",", skip_lines=0, date_order="ymd",
+                          sample_id_column="Sample", sampled_date_column="Date",
+                          taxon_column="Taxon", count_column="Count", unit_column="Unit")
+    records, meta = read_samples(path, layout, TZ, site_id="s", bad_rows="reject")
+    assert list(records["sample_id"]) == ["X1"]
+    rejected = meta.rejects
+    assert list(rejected["line"]) == [3] and list(rejected["reason"]) == ["no_unit"]
+
+
 # --- totals ------------------------------------------------------------------------------------
 
 def make_records(rows: list[tuple[str, str, float, str | None]]) -> pd.DataFrame:

@@ -109,6 +109,21 @@ def test_read_weather_binary(bad_rows):
     _assert_sentence(err, "binary.bin", mentions=("binary",))
 
 
+def test_a_text_log_with_a_few_nul_bytes_rejects_their_row_naming_line_and_column():
+    # A logger losing power writes NUL bytes into a value: that row goes to the ledger, the rest
+    # of the log is read, and no message prints a raw NUL (common practice, no source).
+    name = "nul_bytes_in_a_value.csv"
+    data, meta = _read(name)
+    _assert_values(data, "air_temp_c", [12.5, 12.6, 12.7])
+    assert _flags(data, "air_temp_c") == ["ok", "filled", "ok"]
+    (entry,) = meta.rejects.to_dict("records")
+    assert (entry["line"], entry["column"], entry["reason"]) == (3, "air_temp_c", "bad_number")
+    assert "NUL bytes" in entry["message"] and "\x00" not in entry["message"] + entry["raw"]
+    err = _error(name)
+    _assert_sentence(err, name, line=3, column="air_temp_c", mentions=("NUL bytes",))
+    assert "\x00" not in str(err)
+
+
 @FILE_LEVEL
 def test_read_weather_wrong_separator(bad_rows):
     # Semicolon-separated file, comma declared: no line splits into two fields.
@@ -137,6 +152,25 @@ def test_read_weather_unknown_column_ignored():
     assert list(data.columns) == ["air_temp_c", "air_temp_c_flag"]
     assert meta.files[0].ignored_columns == ["wind_chill_c"]
     _assert_values(data, "air_temp_c", [12.5, 12.6, 12.7])
+
+
+def test_a_declared_column_absent_from_the_file_is_a_warning_in_the_summary():
+    # The dialect maps 'Water T' but this export has no such column: said, not silently dropped.
+    dialect = WeatherDialect(other_columns="ignore",
+                             columns={"Water T": ColumnSpec("water_temp_c", "degC")})
+    data, meta = _read("unknown_column.csv", dialect)
+    assert "water_temp_c" not in data.columns
+    assert meta.summary()["warnings"] == [
+        "unknown_column.csv: the dialect declares column 'Water T' (water_temp_c) but this file "
+        "has no such column: water_temp_c is missing for its rows"]
+
+
+def test_a_declared_column_absent_from_the_file_is_an_error_under_stop():
+    dialect = WeatherDialect(other_columns="ignore",
+                             columns={"Water T": ColumnSpec("water_temp_c", "degC")})
+    err = _error("unknown_column.csv", dialect, bad_rows="stop")
+    _assert_sentence(err, "unknown_column.csv", line=1, column="Water T",
+                     mentions=("declares column 'Water T'",))
 
 
 def test_read_weather_no_stamp_column():

@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import dataclasses
 import glob
+import re
 import tomllib
 import types
 import typing
@@ -278,14 +279,37 @@ def load_config(path: str | Path | None = None, *, check_files: bool = True) -> 
         label, text, base = "<embedded demo>", embedded_demo_text(), Path.cwd()
     else:
         p = Path(path)
-        if not p.is_file():
-            raise ConfigError(p, None, "no such configuration file")
-        label, text, base = str(p), p.read_text("utf-8"), p.parent
+        label, text, base = str(p), _config_text(p), p.parent
     try:
         raw = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise ConfigError(label, None, f"not valid TOML: {exc}") from None
     return _Reader(label, base, path is None).config(raw, check_files)
+
+
+def _config_text(path: Path) -> str:
+    """The text of a configuration file, refused in one sentence when it is not one."""
+    if path.is_dir():
+        raise ConfigError(path, None, "this is a folder, not a configuration file; give the "
+                                      "path of the .toml file itself")
+    try:
+        raw = path.read_bytes()
+    except FileNotFoundError:
+        raise ConfigError(path, None, "no such configuration file") from None
+    except OSError as exc:
+        raise ConfigError(path, None, f"cannot be read ({exc.strerror or exc})") from None
+    if b"\x00" in raw:
+        line = raw[:raw.index(b"\x00")].count(b"\n") + 1
+        raise ConfigError(path, None, f"line {line} holds a NUL byte: this is not a text file "
+                                      "(TOML is UTF-8 text)")
+    try:
+        return raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        line = raw[:exc.start].count(b"\n") + 1
+        column = exc.start - (raw.rfind(b"\n", 0, exc.start) + 1) + 1
+        raise ConfigError(path, None, f"line {line}, byte {column} is not UTF-8 (byte "
+                                      f"0x{raw[exc.start]:02x}): save the file as UTF-8, as TOML "
+                                      "requires") from None
 
 
 _TOP = {"root", "data_dir", "reports_dir", "models_dir", "ingest", "dialects", "sample_layouts",
@@ -295,6 +319,10 @@ _DIALECT = {"separator", "decimal", "encoding", "skip_lines", "date_column", "ti
             "other_columns", "coerce_year"}
 _SITE = {"id", "name", "timezone", "use", "interval", "weather", "samples", "drivers", "alerts",
          "model", "authority"}
+
+
+_SITE_ID = re.compile(r"[A-Za-z0-9_-]+")
+_LINE_BREAK = re.compile(r"[\x00-\x1f\x7f\u2028\u2029\x85]")
 
 
 class _Reader:
@@ -382,7 +410,33 @@ class _Reader:
             models_dir=self.path(self.get(raw, "models_dir", str, "", "models")),
             ingest=ingest, dialects=dialects, sites=sites, demo=demo, raw=raw,
             layouts=layouts, taxa=taxa,
-            service=self.record(self.get(raw, "service", dict, "", {}), ServiceSettings, "service"))
+            service=self.service(self.get(raw, "service", dict, "", {})))
+
+    def service(self, table: dict) -> ServiceSettings:
+        """The service settings; addresses reach e-mail headers, so no line break is allowed."""
+        settings = self.record(table, ServiceSettings, "service")
+        for key, value in (("mail_from", settings.mail_from),
+                           *((f"mail_to[{i}]", v) for i, v in enumerate(settings.mail_to))):
+            if _LINE_BREAK.search(value):
+                raise self.fail(f"service.{key}", "an e-mail address cannot hold a line break")
+        return settings
+
+    def site_id(self, table: dict, where: str) -> str:
+        """A site id names folders and files: letters, digits, '_' and '-' only."""
+        value = self.get(table, "id", str, where)
+        if not _SITE_ID.fullmatch(value):
+            raise self.fail(f"{where}.id", f"{value!r} is not a usable site id: use letters, "
+                                           "digits, '_' and '-' only (it names folders and files)")
+        return value
+
+    def one_line(self, table: dict, key: str, where: str, default: Any = ...) -> str:
+        """Text that reaches report headings and e-mail subjects: one line, no control
+        characters."""
+        value = self.get(table, key, str, where, default)
+        if _LINE_BREAK.search(value):
+            raise self.fail(f"{where}.{key}", "must be one line of text, without line breaks or "
+                                              "control characters")
+        return value
 
     def custom(self, table: Any, name: str) -> Scheme:
         """A custom alert-level scheme: title, use, source, year and ordered levels."""
@@ -583,12 +637,12 @@ class _Reader:
                 raise self.fail(f"{where}.model.drivers", f"{name!r} is not a driver of the "
                                 f"glossary; the defaults are {', '.join(DEFAULT_DRIVERS)}")
         site = Site(
-            id=self.get(table, "id", str, where), name=self.get(table, "name", str, where),
+            id=self.site_id(table, where), name=self.one_line(table, "name", where),
             timezone=tz, use=self.choice(table, "use", USES, where, "drinking"),
             interval=interval,
             weather=WeatherSource(tuple(patterns), tuple(files), dialect, period, dialects[dialect]),
             samples=samples, drivers=drivers, scheme=scheme, measures=measures, custom_scheme=custom,
-            model=model, authority=self.get(table, "authority", str, where, DEFAULT_AUTHORITY),
+            model=model, authority=self.one_line(table, "authority", where, DEFAULT_AUTHORITY),
             ingest=self.ingest, warn_at=warn_at, problems=tuple(self.site_problems))
         try:
             return dataclasses.replace(site, spec=dataclasses.replace(

@@ -131,9 +131,11 @@ def _choices(values) -> str:
 
 def _from_dataclass(cls: type, *, none_means: str = "not set", skip: tuple[str, ...] = (),
                     allowed: dict[str, str] | None = None, docs: dict[str, str] | None = None,
-                    sniffed: tuple[str, ...] = ()) -> tuple[Key, ...]:
+                    sniffed: tuple[str, ...] = (),
+                    unset_means: dict[str, str] | None = None) -> tuple[Key, ...]:
     """The keys of a settings dataclass; ``sniffed`` fields left unset are read from the file,
-    other unset optional fields mean ``none_means``."""
+    fields in ``unset_means`` say what leaving them out does, other unset optional fields mean
+    ``none_means``."""
     hints = typing.get_type_hints(cls)
     found = _field_docs(cls) | (docs or {})
     allowed = allowed or {}
@@ -142,7 +144,7 @@ def _from_dataclass(cls: type, *, none_means: str = "not set", skip: tuple[str, 
         if f.name in skip:
             continue
         doc = found.get(f.name, "")
-        unset = "sniffed" if f.name in sniffed else none_means
+        unset = "sniffed" if f.name in sniffed else (unset_means or {}).get(f.name, none_means)
         out.append(Key(f.name, _kind(hints[f.name]), _default(f, unset),
                        allowed.get(f.name, ""), doc, _unit(f.name, doc)))
     return tuple(out)
@@ -215,6 +217,7 @@ def sections() -> list[Section]:
                                          "belongs to the site that reads the sheet.",
                 _from_dataclass(SampleLayout, none_means="not used",
                                 sniffed=("separator", "decimal", "skip_lines", "date_order"),
+                                unset_means={"count_unit": "none: the header must say"},
                                 allowed={
                     "shape": '"long", "wide"', "date_order": _choices(DATE_ORDERS),
                     "count_unit": '"cells/mL", "cells/L"', "decimal": '".", ","',

@@ -16,7 +16,9 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from cyanorisk.ingest.lines import TextFile, split_header
+from pathlib import Path
+
+from cyanorisk.ingest.lines import TextFile, read_text, split_header
 from cyanorisk.ingest.quality import IngestError
 from cyanorisk.units import conversion
 from cyanorisk.variables import WEATHER_VARIABLES
@@ -139,6 +141,29 @@ class Table:
     decimal: str
     header: list[str]
     assumptions: tuple[str, ...]
+
+
+def read_text_naming_column(path: Path, encoding: str, separator: str | None,
+                            skip_lines: int | None, decimal: str | None,
+                            declared_in: str = "the dialect") -> TextFile:
+    """:func:`read_text`, with the column of a byte that is not in the encoding named (found by
+    reading the file leniently)."""
+    try:
+        return read_text(path, encoding, declared_in)
+    except IngestError as exc:
+        if exc.line is None or exc.byte_in_line is None:
+            raise
+        try:
+            raw = path.read_bytes()
+            text = TextFile(path, raw.decode("utf-8", "replace").encode("utf-8"))
+            table = sniff_table(text, separator, skip_lines, decimal)
+            field = raw.split(b"\n")[exc.line - 1][:exc.byte_in_line - 1].count(
+                table.separator.encode())
+        except (IngestError, IndexError, UnicodeError):
+            raise exc from None
+        if exc.line <= table.skip_lines + 1 or field >= len(table.header):
+            raise
+        raise IngestError(path, exc.reason, line=exc.line, column=table.header[field]) from None
 
 
 def sniff_table(text: TextFile, separator: str | None, skip_lines: int | None,
@@ -353,3 +378,13 @@ def column_plan(layout: Layout, path: object) -> tuple[dict[str, ColumnSpec], li
     if not plan:
         raise IngestError(path, "no column maps to a weather variable", line=layout.header_index + 1)
     return plan, ignored
+
+
+def absent_columns(layout: Layout) -> list[str]:
+    """Sentences naming each column the dialect maps to a variable that this file's header lacks
+    (its variable is missing for the file's rows)."""
+    header = set(layout.header)
+    return [f"the dialect declares column '{name}' ({spec.variable}) but this file has no such "
+            f"column: {spec.variable} is missing for its rows"
+            for name, spec in layout.dialect.columns.items()
+            if spec.variable is not None and name not in header]

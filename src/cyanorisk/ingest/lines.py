@@ -93,7 +93,7 @@ class RawTable:
         return len(self.line_numbers)
 
 
-def read_text(path: Path, encoding: str = "utf-8") -> TextFile:
+def read_text(path: Path, encoding: str = "utf-8", declared_in: str = "the dialect") -> TextFile:
     """Read a file as text, refusing binary files and undeclared encodings with a clear error.
 
     Raises
@@ -110,9 +110,10 @@ def read_text(path: Path, encoding: str = "utf-8") -> TextFile:
     if enc in ("utf-8", "utf8"):
         if head.startswith((b"\xff\xfe", b"\xfe\xff")) or (b"\x00" in head and _looks_utf16(head)):
             raise IngestError(path, "the file is UTF-16 encoded text; save it as UTF-8 or "
-                                    "declare encoding = 'utf-16' in the dialect")
-        if b"\x00" in head:
+                                    f"declare encoding = 'utf-16' in {declared_in}")
+        if _binary(head):
             raise IngestError(path, "this is a binary file, not delimited text")
+        raw = _mark_nul_bytes(raw)
         if raw.startswith(b"\xef\xbb\xbf"):
             raw = raw[3:]
         try:
@@ -123,18 +124,36 @@ def read_text(path: Path, encoding: str = "utf-8") -> TextFile:
             col = exc.start - (raw.rfind(b"\n", 0, exc.start) + 1) + 1
             raise IngestError(
                 path, f"byte 0x{raw[exc.start]:02x} at character {col} is not UTF-8; the file is "
-                      "in another encoding: declare it in the dialect, e.g. encoding = 'latin-1'",
+                      f"in another encoding: declare it in {declared_in}, e.g. encoding = 'latin-1'",
                 line=line, byte_in_line=col) from None
     else:
         try:
             raw = raw.decode(encoding).lstrip("\ufeff").encode("utf-8")
         except (UnicodeDecodeError, LookupError) as exc:
             raise IngestError(path, f"cannot be read as {encoding}: {exc}") from None
-        if b"\x00" in raw[:8192]:
+        if _binary(raw[:8192]):
             raise IngestError(path, "this is a binary file, not delimited text")
+        raw = _mark_nul_bytes(raw)
     if b"\r" in raw:
         raw = raw.replace(b"\r\n", b"\n").replace(b"\r", b"\n")
     return TextFile(path, raw)
+
+
+_BINARY_SIGNATURES = (b"PK\x03\x04", b"\xd0\xcf\x11\xe0", b"%PDF", b"\x89PNG", b"\x1f\x8b")
+"""Zip (xlsx), OLE (xls), PDF, PNG and gzip files: exports saved in the wrong format."""
+REPLACEMENT = "\ufffd".encode()
+
+
+def _binary(head: bytes) -> bool:
+    """A binary file: a known signature, or NUL bytes in more than 1% of its first bytes (and more than 16) (a text
+    log with a few NUL bytes, as a logger losing power writes, is still text)."""
+    return head.startswith(_BINARY_SIGNATURES) or head.count(0) > max(16, len(head) // 100)
+
+
+def _mark_nul_bytes(raw: bytes) -> bytes:
+    """Stray NUL bytes become U+FFFD, so the values they damage fail to parse and their rows
+    reach the rejects ledger with line and column, and no message prints a raw NUL."""
+    return raw.replace(b"\x00", REPLACEMENT) if b"\x00" in raw else raw
 
 
 def _blank(data: bytes) -> bool:

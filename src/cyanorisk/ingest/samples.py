@@ -25,7 +25,7 @@ import numpy as np
 import pandas as pd
 
 from cyanorisk.ingest.counts import CENSOR_ABOVE, CENSOR_BELOW, EXACT, parse_count
-from cyanorisk.ingest.dialects import DATE_ORDERS, Table, sniff_table
+from cyanorisk.ingest.dialects import DATE_ORDERS, Table, read_text_naming_column, sniff_table
 from cyanorisk.ingest.lines import Parsing, TextFile, read_table, read_text
 from cyanorisk.ingest.quality import (
     AFTER_LATEST,
@@ -91,8 +91,9 @@ class SampleLayout:
     """Long: the column of counts (numbers, '<100', '>200000', 'ND', 'TNTC')."""
     unit_column: str | None = None
     """Long: the column of count units ('cells/mL', 'cells/L')."""
-    count_unit: str = "cells/mL"
-    """Unit of counts when neither the header nor a unit column says: 'cells/mL' or 'cells/L'."""
+    count_unit: str | None = None
+    """Unit of counts when neither the header nor a unit column says: 'cells/mL' or 'cells/L'.
+    Unset, a count column whose header names no unit refuses the sheet (no unit is assumed)."""
     taxa_columns: tuple[str, ...] | None = None
     """Wide: the taxon columns; None takes every column not named elsewhere."""
     biovolume_column: str | None = None
@@ -122,7 +123,7 @@ class SampleLayout:
             raise ValueError("a long layout needs taxon_column and count_column")
         if self.date_order not in (None, *DATE_ORDERS):
             raise ValueError(f"date_order must be one of {', '.join(DATE_ORDERS)}")
-        if _unit_factor(self.count_unit) is None:
+        if self.count_unit is not None and _unit_factor(self.count_unit) is None:
             raise ValueError(f"count_unit must be 'cells/mL' or 'cells/L', not {self.count_unit!r}")
         if self.duplicates not in DUPLICATE_POLICIES:
             raise ValueError("duplicates must be 'last' or 'first'")
@@ -297,7 +298,8 @@ def _raw_rows(data: pd.DataFrame) -> set[tuple[str, int]]:
 
 def _read_file(path: Path, layout: SampleLayout, timezone: str, site_id: str | None, bad_rows: str,
                ledger: Ledger, window: tuple[int, int]) -> tuple[pd.DataFrame, int, list[str]]:
-    text = read_text(path, layout.encoding)
+    text = read_text_naming_column(path, layout.encoding, layout.separator, layout.skip_lines,
+                                   layout.decimal, "the sample layout")
     table = sniff_sheet(text, layout)
     header = table.header
     raw = read_table(text, table.skip_lines, Parsing(table.separator, table.decimal, (),
@@ -368,7 +370,24 @@ def sniff_sheet(text: TextFile, layout: SampleLayout) -> Table:
             raise IngestError(text.path, f"the layout names column '{name}' but the header has "
                                          f"{', '.join(table.header)}", line=table.skip_lines + 1,
                               column=name)
+    if layout.count_unit is None:
+        unitless = [c for c in _count_columns(layout, table.header) if _header_unit(c) is None]
+        if unitless and not (layout.shape == "long" and layout.unit_column):
+            raise IngestError(text.path, "the header names no count unit for this column and the "
+                                         "layout declares none; write the unit in the header, "
+                                         f"e.g. '{unitless[0]} (cells/mL)', or set count_unit = "
+                                         "\"cells/mL\" (or \"cells/L\") in the sample layout",
+                              line=table.skip_lines + 1, column=unitless[0])
     return table
+
+
+def _count_columns(layout: SampleLayout, header: list[str]) -> list[str]:
+    """The columns holding counts: the long layout's count column, or the wide one's taxa."""
+    if layout.shape == "long":
+        return [layout.count_column]
+    named = layout.named_columns()
+    return list(layout.taxa_columns) if layout.taxa_columns else [h for h in header
+                                                                  if h not in named]
 
 
 def _day_text(day: int) -> str:
@@ -495,16 +514,21 @@ def _sample_values(cols: dict, layout: SampleLayout, decimal: str, rows: np.ndar
 def _long_records(cols: dict, layout: SampleLayout, decimal: str, header: list[str], n: int,
                   problems: list) -> pd.DataFrame:
     rows = np.arange(n)
-    factors = np.full(n, _unit_factor(_header_unit(layout.count_column) or layout.count_unit))
+    declared = _header_unit(layout.count_column) or layout.count_unit
+    factors = np.full(n, np.nan if declared is None else _unit_factor(declared))
     if layout.unit_column:
         for i, u in enumerate(cols[layout.unit_column]):
-            if str(u).strip():
+            if not str(u).strip() and declared is None:
+                problems.append((i, layout.unit_column, "no_unit",
+                                 "the unit is blank and the layout declares no count_unit"))
+            elif str(u).strip():
                 f = _unit_factor(str(u))
                 if f is None:
                     problems.append((i, layout.unit_column, "bad_unit",
                                      f"'{u}' is not a count unit; expected cells/mL or cells/L"))
                 else:
                     factors[i] = f
+    factors[np.isnan(factors)] = 1.0  # rows without a unit are rejected above
     counts = _count_cells(cols[layout.count_column], factors, layout, decimal, layout.count_column,
                           problems, rows)
     taxa = np.array([str(t).strip() for t in cols[layout.taxon_column]], dtype=object)
@@ -521,9 +545,7 @@ def _header_unit(name: str | None) -> str | None:
 
 def _wide_records(cols: dict, layout: SampleLayout, decimal: str, header: list[str], n: int,
                   problems: list) -> pd.DataFrame:
-    named = layout.named_columns()
-    taxa_cols = list(layout.taxa_columns) if layout.taxa_columns else [h for h in header
-                                                                      if h not in named]
+    taxa_cols = _count_columns(layout, header)
     if not taxa_cols:
         raise IngestError("<layout>", "a wide layout needs at least one taxon column")
     rows = np.repeat(np.arange(n), len(taxa_cols))

@@ -27,7 +27,9 @@ from cyanorisk.ingest.dialects import (
     SEPARATOR_NAMES,
     ColumnSpec,
     WeatherDialect,
+    absent_columns,
     column_plan,
+    read_text_naming_column,
     sniff_layout,
     sniff_table,
     zone_offset,
@@ -75,6 +77,8 @@ class FileReport:
     assumptions: list[str]
     """Sentences saying what was sniffed or assumed."""
     ignored_columns: list[str]
+    warnings: list[str] = field(default_factory=list)
+    """Sentences on what the file lacks that the dialect declares."""
 
 
 @dataclass
@@ -105,6 +109,7 @@ class WeatherMeta:
         return {
             "files": [f.path for f in self.files],
             "assumptions": sorted({a for f in self.files for a in f.assumptions}),
+            "warnings": [f"{Path(f.path).name}: {w}" for f in self.files for w in f.warnings],
             "interval": str(self.interval),
             "timezone": self.timezone,
             "start_utc": None if self.start is None else self.start.isoformat(),
@@ -282,13 +287,16 @@ def assemble_weather(files: Sequence[WeatherFile], interval: str | pd.Timedelta,
 
 def _parse_file(path: Path, k: int, dialect: WeatherDialect, timezone: str, step_ns: int,
                 bad_rows: str, ledger: Ledger, earliest: date) -> tuple[Rows, FileReport, int, int]:
-    try:
-        text = read_text(path, dialect.encoding)
-    except IngestError as exc:
-        raise _name_the_column(path, dialect, exc) from None
+    text = read_text_naming_column(path, dialect.encoding, dialect.separator,
+                                   dialect.skip_lines, dialect.decimal)
     layout = sniff_layout(text, dialect)
     d = layout.dialect
     plan, ignored = column_plan(layout, path)
+    absent = absent_columns(layout)
+    if absent and bad_rows == "stop":
+        name = next(n for n in d.columns if n not in layout.header and d.columns[n].variable)
+        raise IngestError(path, absent[0].replace(" this file", " the file"),
+                          line=layout.header_index + 1, column=name)
     stamp_cols = (d.date_column, d.time_column, d.timestamp_column)
     stamps = tuple(c for c in stamp_cols if c)
     raw = read_table(text, layout.header_index, Parsing(
@@ -316,25 +324,8 @@ def _parse_file(path: Path, k: int, dialect: WeatherDialect, timezone: str, step
                 for key, val in asdict(d).items() if key != "columns"}
     resolved["columns"] = {c: asdict(s) for c, s in plan.items()}
     report = FileReport(str(path), raw.n_rows + len(raw.bad_lines), resolved,
-                        list(layout.assumptions) + notes, ignored)
+                        list(layout.assumptions) + notes, ignored, absent)
     return rows, report, n_amb, n_non
-
-
-def _name_the_column(path: Path, dialect: WeatherDialect, exc: IngestError) -> IngestError:
-    """Add the column to an encoding error, found by reading the file leniently."""
-    if exc.line is None or exc.byte_in_line is None:
-        return exc
-    try:
-        raw = path.read_bytes()
-        text = TextFile(path, raw.decode("utf-8", "replace").encode("utf-8"))
-        table = sniff_table(text, dialect.separator, dialect.skip_lines, dialect.decimal)
-        line = raw.split(b"\n")[exc.line - 1]
-        field = line[:exc.byte_in_line - 1].count(table.separator.encode())
-    except (IngestError, IndexError, UnicodeError):
-        return exc
-    if exc.line <= table.skip_lines + 1 or field >= len(table.header):
-        return exc
-    return IngestError(path, exc.reason, line=exc.line, column=table.header[field])
 
 
 class _Problems:
@@ -357,7 +348,7 @@ class _Problems:
         self.bad[new] = True
         cells = (values.take(pa.array(new)).to_pylist() if values is not None
                  else [""] * len(new))
-        self.entries.append((new, column, reason, cells, [message.format(raw=c) for c in cells]))
+        self.entries.append((new, column, reason, cells, [_said(message, c) for c in cells]))
 
     def add_lines(self, lines: np.ndarray, reason: str, messages: list[str]) -> None:
         if len(lines):
@@ -386,6 +377,14 @@ class _Problems:
                        messages)
         for lines, reason, messages in self.line_entries:
             ledger.add(self.path, lines, "", [text.line(int(n)) for n in lines], reason, messages)
+
+
+def _said(message: str, cell: str | None) -> str:
+    """A row's message with its cell's text; stray NUL bytes (read as U+FFFD) are named."""
+    text = message.format(raw=cell)
+    if cell and "\ufffd" in cell:
+        text += " (the file holds NUL bytes here, shown as \ufffd: the export is damaged)"
+    return text
 
 
 def _add_implausible(problems: _Problems, early: np.ndarray, far: np.ndarray, column: str,

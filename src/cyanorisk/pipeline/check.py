@@ -167,6 +167,9 @@ def _check_weather(site, report: SiteCheck, latest) -> pd.DataFrame | None:
                             "unreadable" + (f"; columns ignored: {', '.join(r.ignored_columns)}"
                                             if r.ignored_columns else ""))
         report.assumptions += [f"{path.name}: {a}" for a in r.assumptions]
+        for text in r.warnings:
+            report.add("error" if policy == "stop" else "warning", f"{path.name}: {text}",
+                       "map the column under its name in this file, or check the export")
         _rejected_rows(report, wf.rejects, path.name, policy)
         _standard_time(site, report, wf, path.name)
     report.assumptions = _grouped(report.assumptions, [p.name for p in site.weather.files])
@@ -358,7 +361,7 @@ def _check_limits(site, report: SiteCheck, records: pd.DataFrame) -> None:
     layout = site.samples.parsing
     limit = layout.detection_limit_cells_per_ml
     lo, hi = USUAL_DETECTION_LIMITS_CELLS_PER_ML
-    per_l = layout.count_unit.lower().replace(" ", "") in ("cells/l", "cells/litre") \
+    per_l = (layout.count_unit or "").lower().replace(" ", "") in ("cells/l", "cells/litre") \
         or records["flag"].str.contains("converted_from_cells_per_l", regex=False).any()
     if limit is not None and not lo <= limit <= hi:
         as_per_l = limit / CELLS_PER_L_IN_ML

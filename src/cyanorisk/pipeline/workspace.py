@@ -12,7 +12,7 @@ Layout (``<site>`` is the site's id)::
     data_dir/<site>/cache/                   parsed raw files, by content hash
     data_dir/<site>/.run.lock                one run at a time for this site
     data_dir/model-signing.key               the key model files are signed with (mode 0600)
-    models_dir/<site>.json                   the fitted models (JSON, checksummed)
+    models_dir/<site>.json                   the fitted models (JSON, signed)
     models_dir/<site>.thresholds.toml        tuned warning thresholds
     reports_dir/<site>/<site>_<date>.html    the daily report (.json, .txt beside it)
     reports_dir/<site>/backtest_<seasons>/   forecasts.csv, scores, backtest.html
@@ -21,6 +21,7 @@ Layout (``<site>`` is the site's id)::
 
 from __future__ import annotations
 
+import re
 import tomllib
 from dataclasses import dataclass
 from pathlib import Path
@@ -35,6 +36,9 @@ if TYPE_CHECKING:
     from cyanorisk.model import SiteModels
 
 
+_SITE_ID = re.compile(r"[A-Za-z0-9_-]+")
+
+
 @dataclass(frozen=True)
 class SiteWorkspace:
     """The folders of one site and the files in them."""
@@ -45,6 +49,13 @@ class SiteWorkspace:
     reports_dir: Path
     outbox_dir: Path
     """Where notices are written (shared by the sites of an installation)."""
+
+    def __post_init__(self) -> None:
+        # Every path below is a configured folder joined with the id (and fixed names), so an id
+        # of letters, digits, '_' and '-' keeps every file inside its folder.
+        if not _SITE_ID.fullmatch(self.site_id):
+            raise ValueError(f"{self.site_id!r} is not a usable site id: letters, digits, '_' "
+                             "and '-' only")
 
     @classmethod
     def of(cls, config: Config, site_id: str) -> SiteWorkspace:

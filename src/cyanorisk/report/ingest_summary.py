@@ -49,6 +49,7 @@ def summary_text(summary: dict[str, Any]) -> str:
                      + (", " + ", ".join(parts) if parts else ""))
     if w["assumptions"]:
         lines.append("  assumed: " + "; ".join(w["assumptions"]))
+    lines += [f"  warning: {text}" for text in w.get("warnings", [])]
     if summary.get("samples") is not None:
         lines += _samples_text(summary["samples"])
     if summary.get("reused"):
