@@ -225,6 +225,26 @@ def test_changed_thresholds_issue_revision_2(tmp_path, demo_site, count_ingests)
     assert doc["forecast"]["level"] == LOW
 
 
+def test_a_changed_authority_in_the_configuration_issues_revision_2(tmp_path, demo_site,
+                                                                   count_ingests):
+    # What a report says depends on the configuration too: a new authority must be re-issued.
+    path = make_config(tmp_path, demo_site)
+    config = load_config(path)
+    clock = Clock()
+    (o1,) = run_daily(RISE_DAY, config, clock=clock).sites
+    text = path.read_text(encoding="utf-8")
+    old = config.sites[0].authority
+    path.write_text(text.replace(f'authority = "{old}"', 'authority = "Merrin Falls Shire"'),
+                    encoding="utf-8")
+    config = load_config(path)
+    assert config.sites[0].authority == "Merrin Falls Shire"
+    (o2,) = run_daily(RISE_DAY, config, clock=clock).sites
+    assert (o1.revision, o2.action, o2.revision) == (1, "issued", 2)
+    assert o2.reason == "inputs changed: site settings changed"
+    assert count_ingests == []  # the clean tables do not depend on the authority
+    assert "Merrin Falls Shire" in Path(report_path(o2.paths, "txt")).read_text(encoding="utf-8")
+
+
 # ---------------------------------------------------------------------------------------------
 # One failing site does not stop another
 # ---------------------------------------------------------------------------------------------

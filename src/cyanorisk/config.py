@@ -298,6 +298,9 @@ def _config_text(path: Path) -> str:
         raise ConfigError(path, None, "no such configuration file") from None
     except OSError as exc:
         raise ConfigError(path, None, f"cannot be read ({exc.strerror or exc})") from None
+    if raw.startswith((b"\xff\xfe", b"\xfe\xff")):
+        raise ConfigError(path, None, "the file is UTF-16 encoded text: save it as UTF-8, as "
+                                      "TOML requires")
     if b"\x00" in raw:
         line = raw[:raw.index(b"\x00")].count(b"\n") + 1
         raise ConfigError(path, None, f"line {line} holds a NUL byte: this is not a text file "

@@ -13,10 +13,9 @@ import re
 from collections import Counter
 from collections.abc import Mapping
 from dataclasses import dataclass, field, replace
+from pathlib import Path
 
 import numpy as np
-
-from pathlib import Path
 
 from cyanorisk.ingest.lines import TextFile, read_text, split_header
 from cyanorisk.ingest.quality import IngestError

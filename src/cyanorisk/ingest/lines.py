@@ -108,7 +108,8 @@ def read_text(path: Path, encoding: str = "utf-8", declared_in: str = "the diale
     head = raw[:8192]
     enc = encoding.lower().replace("_", "-")
     if enc in ("utf-8", "utf8"):
-        if head.startswith((b"\xff\xfe", b"\xfe\xff")) or (b"\x00" in head and _looks_utf16(head)):
+        if head.startswith((b"\xff\xfe", b"\xfe\xff")) or (
+                b"\x00" in head and not head.startswith(_BINARY_SIGNATURES) and _looks_utf16(head)):
             raise IngestError(path, "the file is UTF-16 encoded text; save it as UTF-8 or "
                                     f"declare encoding = 'utf-16' in {declared_in}")
         if _binary(head):
@@ -145,8 +146,8 @@ REPLACEMENT = "\ufffd".encode()
 
 
 def _binary(head: bytes) -> bool:
-    """A binary file: a known signature, or NUL bytes in more than 1% of its first bytes (and more than 16) (a text
-    log with a few NUL bytes, as a logger losing power writes, is still text)."""
+    """A binary file: a known signature, or more NUL bytes than 16 and than 1% of its first
+    bytes (a text log with a few NUL bytes, as a logger losing power writes, is still text)."""
     return head.startswith(_BINARY_SIGNATURES) or head.count(0) > max(16, len(head) // 100)
 
 

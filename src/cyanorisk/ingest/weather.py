@@ -31,10 +31,9 @@ from cyanorisk.ingest.dialects import (
     column_plan,
     read_text_naming_column,
     sniff_layout,
-    sniff_table,
     zone_offset,
 )
-from cyanorisk.ingest.lines import Parsing, RawTable, TextFile, read_table, read_text
+from cyanorisk.ingest.lines import Parsing, RawTable, read_table, read_text
 from cyanorisk.ingest.quality import (
     AFTER_LATEST,
     BAD_ROW_POLICIES,
@@ -263,6 +262,13 @@ def assemble_weather(files: Sequence[WeatherFile], interval: str | pd.Timedelta,
     rows = _concat([f.rows for f in files])
     account = RowAccount(read=sum(f.report.rows_read for f in files))
     account.rejected = sum(len(p) for p in ledger.parts)
+    if files and not len(rows.t):
+        first = ledger.frame().sort_values(["file", "line"]).iloc[0] if account.rejected else None
+        why = (f"; the first, line {first['line']} of {Path(first['file']).name}: "
+               f"{first['message']}") if first is not None else ""
+        raise IngestError(", ".join(map(str, paths)),
+                          f"no reading is left: every one of the {account.read} rows was "
+                          f"rejected{why}")
     rows = _keep_period(rows, period, timezone, paths, ledger, account)
     rows = _keep_before(rows, latest, timezone, paths, ledger, account)
     _range_check(rows)

@@ -301,6 +301,8 @@ def ingest_summary(site: Site, weather: WeatherMeta, samples, totals: pd.DataFra
             "first_sampled": str(totals["sampled_at"].min()) if n else None,
             "last_sampled": str(totals["sampled_at"].max()) if n else None,
             "censored_below": int((totals["cyano_censor"] == "<").sum()) if n else 0,
+            "unknown_taxa": sorted({t.strip() for names in totals["unknown_taxa"] if names
+                                    for t in str(names).split(",")}) if n else [],
             "first_reject": _first_reject(samples.rejects)}
     return out
 

@@ -72,4 +72,7 @@ def _samples_text(s: dict[str, Any]) -> list[str]:
                      "(kept, marked)")
     lines.append(f"    cyanobacteria total censored below detection in {s['censored_below']} "
                  "sample(s)")
+    if s.get("unknown_taxa"):
+        lines.append("    taxa not listed under [taxa], so not counted as cyanobacteria: "
+                     + ", ".join(s["unknown_taxa"]))
     return lines
