@@ -35,6 +35,7 @@ bench: $(STAMP)
 	$(BIN)/python benchmarks/bench_features.py
 	$(BIN)/python benchmarks/bench_backtest.py
 	$(BIN)/python benchmarks/bench_cli.py
+	$(BIN)/python benchmarks/bench_faults.py
 
 clean:
 	rm -rf $(VENV) build src/*.egg-info .pytest_cache .ruff_cache
