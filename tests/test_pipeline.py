@@ -231,3 +231,14 @@ def test_lab_sheets_that_never_name_the_site_are_refused_with_the_alias_fix(own_
                         encoding="utf-8")
     clean = pipeline_of(own_copy).clean()
     assert len(clean.totals) and set(clean.totals["site_id"]) == {"tallow"}
+
+
+def test_the_ingest_summary_dates_samples_by_the_sites_local_day(demo_site):
+    # A sample taken at 10:00 in Melbourne is 23:00 UTC the day before: the summary says the
+    # day the lab wrote, converted by pandas (IANA tz database) as the reference.
+    from cyanorisk.report.ingest_summary import summary_text
+
+    tz = demo_site.site.timezone
+    first = demo_site.totals["sampled_at"].min().tz_convert(tz).date()
+    last = demo_site.totals["sampled_at"].max().tz_convert(tz).date()
+    assert f"samples, {first} to {last} (local)" in summary_text(demo_site.clean.summary)

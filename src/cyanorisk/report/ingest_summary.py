@@ -51,7 +51,7 @@ def summary_text(summary: dict[str, Any]) -> str:
         lines.append("  assumed: " + "; ".join(w["assumptions"]))
     lines += [f"  warning: {text}" for text in w.get("warnings", [])]
     if summary.get("samples") is not None:
-        lines += _samples_text(summary["samples"])
+        lines += _samples_text(summary["samples"], w.get("timezone"))
     if summary.get("reused"):
         lines.append("  the raw files are unchanged since the last ingest: clean tables reused")
     for out in summary.get("outputs", []):
@@ -59,8 +59,19 @@ def summary_text(summary: dict[str, Any]) -> str:
     return "\n".join(lines)
 
 
-def _samples_text(s: dict[str, Any]) -> list[str]:
-    span = f"{s['first_sampled'][:10]} to {s['last_sampled'][:10]}" if s["n_samples"] else "none"
+def _local_day(stamp: str, timezone: str | None) -> str:
+    """The local calendar day of a UTC stamp ('2024-02-29 23:00:00+00:00' is 1 March in
+    Melbourne): samples are dated as the lab dated them."""
+    from datetime import datetime
+    from zoneinfo import ZoneInfo
+
+    when = datetime.fromisoformat(stamp)
+    return str(when.astimezone(ZoneInfo(timezone)).date() if timezone else when.date())
+
+
+def _samples_text(s: dict[str, Any], timezone: str | None = None) -> list[str]:
+    span = (f"{_local_day(s['first_sampled'], timezone)} to "
+            f"{_local_day(s['last_sampled'], timezone)} (local)") if s["n_samples"] else "none"
     lines = [f"  lab results: {len(s['files'])} file(s), {s['n_samples']:,} samples, {span}",
              "    " + _account(s["rows"], off_grid=False)]
     lines += _ledger_lines(s["ledger_by_reason"], s.get("first_reject"), "    ")
