@@ -117,6 +117,19 @@ def test_roc_curve_agrees_with_scikit_learn(data):
     np.testing.assert_allclose(curve["threshold"].iloc[1:], thresholds[1:], atol=0)
 
 
+def test_roc_curve_of_a_backtest_sized_set_with_ties_agrees_with_scikit_learn():
+    # 30,000 forecasts rounded to whole percent (as reports show them): many ties per threshold
+    rng = np.random.default_rng(13)
+    p = np.round(rng.beta(0.6, 2.0, 30_000), 2)
+    o = (rng.random(30_000) < p).astype(float)
+    fpr, tpr, thresholds = sk_roc_curve(o, p, drop_intermediate=False)
+    curve = roc_curve(p, o)
+    assert len(curve) == len(np.unique(p)) + 1
+    np.testing.assert_allclose(curve["false_alarm_rate"], fpr, atol=1e-12)
+    np.testing.assert_allclose(curve["hit_rate"], tpr, atol=1e-12)
+    np.testing.assert_allclose(curve["threshold"].iloc[1:], thresholds[1:], atol=0)
+
+
 @settings(max_examples=40, deadline=None)
 @given(forecast_sets(both_classes=True), st.lists(probabilities, max_size=5),
        st.lists(st.integers(0, 1), max_size=5))

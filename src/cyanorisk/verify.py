@@ -86,17 +86,27 @@ def average_ranks(x: np.ndarray) -> np.ndarray:
 
 
 def roc_curve(score: np.ndarray, o: np.ndarray) -> pd.DataFrame:
-    """ROC points (false-alarm rate, hit rate) for every distinct threshold, highest first."""
+    """ROC points (false-alarm rate, hit rate) for every distinct threshold, highest first.
+
+    One sort and cumulative sums of events and non-events down the scores (Fawcett 2006, An
+    introduction to ROC analysis, Pattern Recognition Letters 27: 861-874, algorithm 1): a
+    threshold warns on every score at or above it. A rate without cases to count is undefined
+    (NaN), as in scikit-learn.
+    """
     s, o = _clean(score, o)
-    thresholds = np.unique(s)[::-1]
+    order = np.argsort(-s, kind="mergesort")
+    s, o = s[order], o[order]
+    last_of_tie = np.concatenate((s[1:] != s[:-1], [True])) if len(s) else np.zeros(0, bool)
+    hits = np.cumsum(o == 1)[last_of_tie]
+    false_alarms = np.cumsum(o == 0)[last_of_tie]
     n_pos, n_neg = int((o == 1).sum()), int((o == 0).sum())
     nan = float("nan")
-    rows = [(np.inf, 0.0 if n_neg else nan, 0.0 if n_pos else nan)]
-    for t in thresholds:  # a rate without cases to count is undefined (NaN), as in scikit-learn
-        warn = s >= t
-        rows.append((t, float((warn & (o == 0)).sum() / n_neg) if n_neg else nan,
-                     float((warn & (o == 1)).sum() / n_pos) if n_pos else nan))
-    return pd.DataFrame(rows, columns=["threshold", "false_alarm_rate", "hit_rate"])
+    far = false_alarms / n_neg if n_neg else np.full(len(hits), nan)
+    hr = hits / n_pos if n_pos else np.full(len(hits), nan)
+    return pd.DataFrame({
+        "threshold": np.concatenate(([np.inf], s[last_of_tie])),
+        "false_alarm_rate": np.concatenate(([0.0 if n_neg else nan], far)).astype(float),
+        "hit_rate": np.concatenate(([0.0 if n_pos else nan], hr)).astype(float)})
 
 
 def reliability_table(p: np.ndarray, o: np.ndarray, bins: int = 10) -> pd.DataFrame:
