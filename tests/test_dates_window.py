@@ -68,6 +68,15 @@ def test_weather_after_the_latest_date_goes_to_the_ledger():
     assert meta.account.rejected == 2
 
 
+def test_a_run_day_before_every_reading_is_one_sentence_not_an_empty_grid():
+    # Every reading dated after the latest plausible day: nothing is left to put on the grid.
+    with pytest.raises(IngestError) as info:
+        read_weather(DATA / "weather" / "dates_iso.csv", None, "30min", "UTC",
+                     latest=date(2020, 1, 1))
+    assert "no reading is left: every one of the 3 rows was rejected" in str(info.value)
+    assert "dated after 2020-01-01" in str(info.value)
+
+
 def test_earliest_date_is_configurable():
     _, meta = read_weather(DATA / "weather" / "dates_iso.csv", None, "30min", "UTC",
                            bad_rows="reject", earliest=date(2024, 1, 13))

@@ -262,15 +262,10 @@ def assemble_weather(files: Sequence[WeatherFile], interval: str | pd.Timedelta,
     rows = _concat([f.rows for f in files])
     account = RowAccount(read=sum(f.report.rows_read for f in files))
     account.rejected = sum(len(p) for p in ledger.parts)
-    if files and not len(rows.t):
-        first = ledger.frame().sort_values(["file", "line"]).iloc[0] if account.rejected else None
-        why = (f"; the first, line {first['line']} of {Path(first['file']).name}: "
-               f"{first['message']}") if first is not None else ""
-        raise IngestError(", ".join(map(str, paths)),
-                          f"no reading is left: every one of the {account.read} rows was "
-                          f"rejected{why}")
     rows = _keep_period(rows, period, timezone, paths, ledger, account)
     rows = _keep_before(rows, latest, timezone, paths, ledger, account)
+    if files and not len(rows.t):
+        raise _nothing_left(paths, ledger, account)
     _range_check(rows)
     order, n_ident, n_conf = regular.deduplicate(rows, duplicates, ledger, paths)
     account.duplicates_identical, account.duplicates_conflicting = n_ident, n_conf
@@ -289,6 +284,17 @@ def assemble_weather(files: Sequence[WeatherFile], interval: str | pd.Timedelta,
         nonexistent_rejected=sum(f.n_nonexistent for f in files),
     )
     return data, meta
+
+
+def _nothing_left(paths: list[Path], ledger: Ledger, account: RowAccount) -> IngestError:
+    """Every row rejected (unreadable, or dated after the run day): one sentence with the first
+    reason, instead of an empty grid."""
+    first = ledger.frame().sort_values(["file", "line"]).iloc[0] if account.rejected else None
+    why = (f"; the first, line {first['line']} of {Path(first['file']).name}: "
+           f"{first['message']}") if first is not None else ""
+    return IngestError(", ".join(map(str, paths)),
+                       f"no reading is left: every one of the {account.read} rows was "
+                       f"rejected{why}")
 
 
 def _parse_file(path: Path, k: int, dialect: WeatherDialect, timezone: str, step_ns: int,
