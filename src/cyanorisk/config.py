@@ -39,6 +39,7 @@ from cyanorisk.ingest.dialects import (
     ColumnSpec,
     WeatherDialect,
 )
+from cyanorisk.ingest.lines import line_and_byte
 from cyanorisk.ingest.quality import (
     BAD_ROW_POLICIES,
     DEFAULT_BAD_ROWS,
@@ -56,6 +57,7 @@ from cyanorisk.spec import (
     DEFAULT_HORIZON_DAYS,
     DEFAULT_LAB_DELAY_DAYS,
     DEFAULT_SEASON_START_MONTH,
+    SITE_ID,
     SiteSpec,
 )
 
@@ -302,14 +304,13 @@ def _config_text(path: Path) -> str:
         raise ConfigError(path, None, "the file is UTF-16 encoded text: save it as UTF-8, as "
                                       "TOML requires")
     if b"\x00" in raw:
-        line = raw[:raw.index(b"\x00")].count(b"\n") + 1
+        line, _ = line_and_byte(raw, raw.index(b"\x00"))
         raise ConfigError(path, None, f"line {line} holds a NUL byte: this is not a text file "
                                       "(TOML is UTF-8 text)")
     try:
         return raw.decode("utf-8")
     except UnicodeDecodeError as exc:
-        line = raw[:exc.start].count(b"\n") + 1
-        column = exc.start - (raw.rfind(b"\n", 0, exc.start) + 1) + 1
+        line, column = line_and_byte(raw, exc.start)
         raise ConfigError(path, None, f"line {line}, byte {column} is not UTF-8 (byte "
                                       f"0x{raw[exc.start]:02x}): save the file as UTF-8, as TOML "
                                       "requires") from None
@@ -324,7 +325,6 @@ _SITE = {"id", "name", "timezone", "use", "interval", "weather", "samples", "dri
          "model", "authority"}
 
 
-_SITE_ID = re.compile(r"[A-Za-z0-9_-]+")
 _LINE_BREAK = re.compile(r"[\x00-\x1f\x7f\u2028\u2029\x85]")
 
 
@@ -427,7 +427,7 @@ class _Reader:
     def site_id(self, table: dict, where: str) -> str:
         """A site id names folders and files: letters, digits, '_' and '-' only."""
         value = self.get(table, "id", str, where)
-        if not _SITE_ID.fullmatch(value):
+        if not SITE_ID.fullmatch(value):
             raise self.fail(f"{where}.id", f"{value!r} is not a usable site id: use letters, "
                                            "digits, '_' and '-' only (it names folders and files)")
         return value

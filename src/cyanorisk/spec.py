@@ -9,6 +9,7 @@ each is said once.
 
 from __future__ import annotations
 
+import re
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 
@@ -16,6 +17,9 @@ from cyanorisk.drivers import DEFAULT_DRIVERS, canonical_driver
 from cyanorisk.features import FeatureSettings
 from cyanorisk.levels import Scheme
 from cyanorisk.levels import scheme as preset_scheme
+
+SITE_ID = re.compile(r"[A-Za-z0-9_-]+")
+"""A site id: letters, digits, '_' and '-' (it names the site's folders and files)."""
 
 DEFAULT_WARN_AT = 0.5
 """Probability at which a level is warned of unless tuned thresholds say otherwise (a neutral

@@ -380,10 +380,14 @@ def column_plan(layout: Layout, path: object) -> tuple[dict[str, ColumnSpec], li
 
 
 def absent_columns(layout: Layout) -> list[str]:
-    """Sentences naming each column the dialect maps to a variable that this file's header lacks
-    (its variable is missing for the file's rows)."""
+    """The columns the dialect maps to a variable that this file's header lacks."""
     header = set(layout.header)
-    return [f"the dialect declares column '{name}' ({spec.variable}) but this file has no such "
-            f"column: {spec.variable} is missing for its rows"
-            for name, spec in layout.dialect.columns.items()
+    return [name for name, spec in layout.dialect.columns.items()
             if spec.variable is not None and name not in header]
+
+
+def absent_column_text(layout: Layout, name: str) -> str:
+    """What a column the dialect declares, and the file lacks, means for its rows."""
+    variable = layout.dialect.columns[name].variable
+    return (f"the dialect declares column '{name}' ({variable}) but this file has no such "
+            f"column: {variable} is missing for its rows")

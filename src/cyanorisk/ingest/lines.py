@@ -121,8 +121,7 @@ def read_text(path: Path, encoding: str = "utf-8", declared_in: str = "the diale
             if not raw.isascii():  # ASCII is valid UTF-8; checking it allocates nothing
                 raw.decode("utf-8")
         except UnicodeDecodeError as exc:
-            line = raw.count(b"\n", 0, exc.start) + 1
-            col = exc.start - (raw.rfind(b"\n", 0, exc.start) + 1) + 1
+            line, col = line_and_byte(raw, exc.start)
             raise IngestError(
                 path, f"byte 0x{raw[exc.start]:02x} at character {col} is not UTF-8; the file is "
                       f"in another encoding: declare it in {declared_in}, e.g. encoding = 'latin-1'",
@@ -155,6 +154,11 @@ def _mark_nul_bytes(raw: bytes) -> bytes:
     """Stray NUL bytes become U+FFFD, so the values they damage fail to parse and their rows
     reach the rejects ledger with line and column, and no message prints a raw NUL."""
     return raw.replace(b"\x00", REPLACEMENT) if b"\x00" in raw else raw
+
+
+def line_and_byte(raw: bytes, offset: int) -> tuple[int, int]:
+    """The 1-based line of byte ``offset`` in ``raw`` and its 1-based position in that line."""
+    return raw.count(b"\n", 0, offset) + 1, offset - (raw.rfind(b"\n", 0, offset) + 1) + 1
 
 
 def _blank(data: bytes) -> bool:

@@ -27,6 +27,7 @@ from cyanorisk.ingest.dialects import (
     SEPARATOR_NAMES,
     ColumnSpec,
     WeatherDialect,
+    absent_column_text,
     absent_columns,
     column_plan,
     read_text_naming_column,
@@ -304,11 +305,10 @@ def _parse_file(path: Path, k: int, dialect: WeatherDialect, timezone: str, step
     layout = sniff_layout(text, dialect)
     d = layout.dialect
     plan, ignored = column_plan(layout, path)
-    absent = absent_columns(layout)
+    missing = absent_columns(layout)
+    absent = [absent_column_text(layout, name) for name in missing]
     if absent and bad_rows == "stop":
-        name = next(n for n in d.columns if n not in layout.header and d.columns[n].variable)
-        raise IngestError(path, absent[0].replace(" this file", " the file"),
-                          line=layout.header_index + 1, column=name)
+        raise IngestError(path, absent[0], line=layout.header_index + 1, column=missing[0])
     stamp_cols = (d.date_column, d.time_column, d.timestamp_column)
     stamps = tuple(c for c in stamp_cols if c)
     raw = read_table(text, layout.header_index, Parsing(

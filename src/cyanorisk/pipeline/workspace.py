@@ -21,7 +21,6 @@ Layout (``<site>`` is the site's id)::
 
 from __future__ import annotations
 
-import re
 import tomllib
 from dataclasses import dataclass
 from pathlib import Path
@@ -29,14 +28,11 @@ from typing import TYPE_CHECKING
 
 from cyanorisk.errors import ModelFileError
 from cyanorisk.integrity import installation_key, key_path
-from cyanorisk.spec import Thresholds
+from cyanorisk.spec import SITE_ID, Thresholds
 
 if TYPE_CHECKING:
     from cyanorisk.config import Config
     from cyanorisk.model import SiteModels
-
-
-_SITE_ID = re.compile(r"[A-Za-z0-9_-]+")
 
 
 @dataclass(frozen=True)
@@ -53,7 +49,7 @@ class SiteWorkspace:
     def __post_init__(self) -> None:
         # Every path below is a configured folder joined with the id (and fixed names), so an id
         # of letters, digits, '_' and '-' keeps every file inside its folder.
-        if not _SITE_ID.fullmatch(self.site_id):
+        if not SITE_ID.fullmatch(self.site_id):
             raise ValueError(f"{self.site_id!r} is not a usable site id: letters, digits, '_' "
                              "and '-' only")
 
