@@ -20,7 +20,6 @@ import argparse
 import hashlib
 import random
 import re
-import shutil
 import signal
 import subprocess
 import sys
@@ -30,43 +29,14 @@ from datetime import date, timedelta
 from pathlib import Path
 
 from cyanorisk.config import embedded_demo_text, load_config
-from cyanorisk.integrity import key_path
 from cyanorisk.service.store import Store
 
 TESTS = Path(__file__).resolve().parents[1] / "tests"
 sys.path.insert(0, str(TESTS))
 from corpus import cases, run_case  # noqa: E402
+from installation import DemoInstall  # noqa: E402
 
 DEMO_LAST_DAY = date(2025, 1, 14)
-
-
-class DemoInstall:
-    """The demo installation as the corpus's model and store cases use it (what the test
-    suite's demo_site fixture offers them)."""
-
-    def __init__(self, config_path: Path) -> None:
-        self.config_path = config_path
-        self.config = load_config(config_path)
-        self.site = self.config.sites[0]
-        self.root = self.config.root
-
-    def seed(self, data_dir: Path) -> None:
-        shutil.copytree(self.config.data_dir / self.site.id, Path(data_dir) / self.site.id,
-                        ignore=shutil.ignore_patterns(".*"))
-
-    def copy_model(self, models_dir: Path, data_dir: Path) -> None:
-        Path(models_dir).mkdir(parents=True, exist_ok=True)
-        shutil.copy2(self.config.models_dir / f"{self.site.id}.json", models_dir)
-        Path(data_dir).mkdir(parents=True, exist_ok=True)
-        shutil.copy2(key_path(self.config.data_dir), key_path(data_dir))
-
-    def write_config(self, path: Path, **dirs: Path) -> Path:
-        text = self.config_path.read_text(encoding="utf-8")
-        text = re.sub(r'(?m)^root = "[^"]*"', f'root = "{self.root.as_posix()}"', text)
-        for key, value in dirs.items():
-            text = re.sub(rf'(?m)^{key} = "[^"]*"', f'{key} = "{Path(value).as_posix()}"', text)
-        path.write_text(text, encoding="utf-8")
-        return path
 
 
 def corpus(install: DemoInstall, work: Path) -> tuple[int, int, int, list[str]]:
@@ -171,7 +141,7 @@ def main() -> None:
                                encoding="utf-8")
         subprocess.run([cyanorisk, "demo", "--config", str(config_path)], cwd=root, check=True,
                        capture_output=True)
-        inputs, tracebacks, misread, wrong = corpus(DemoInstall(config_path), root / "corpus")
+        inputs, tracebacks, misread, wrong = corpus(DemoInstall.of(config_path), root / "corpus")
         for line in wrong:
             print(f"  {line}")
         counts = kills(root, config_path, args.kills, random.Random(args.seed))

@@ -12,18 +12,18 @@ tests that write reports or models point a copy of the configuration elsewhere w
 from __future__ import annotations
 
 import re
-import shutil
 from dataclasses import dataclass
 from pathlib import Path
 
 import pandas as pd
 import pytest
 
-from cyanorisk.config import Config, Site, embedded_demo_text, load_config
+from cyanorisk.config import embedded_demo_text, load_config
 from cyanorisk.demo import write_demo
 from cyanorisk.model import SiteModels
 from cyanorisk.pipeline import CleanData, SitePipeline
 from cyanorisk.spec import SiteSpec
+from installation import DemoInstall
 
 DEMO_YEARS = 8
 DEMO_SEED = 20261202
@@ -31,13 +31,9 @@ DEMO_SEED = 20261202
 
 
 @dataclass
-class DemoSite:
+class DemoSite(DemoInstall):
     """The demo reservoir after ingest and training."""
 
-    root: Path
-    config_path: Path
-    config: Config
-    site: Site
     pipeline: SitePipeline
     clean: CleanData
     table: pd.DataFrame
@@ -59,35 +55,6 @@ class DemoSite:
     def totals(self) -> pd.DataFrame:
         """The per-sample totals."""
         return self.clean.totals
-
-    def seed(self, data_dir: Path) -> None:
-        """Copy the session's clean tables of the demo site into another data folder, so that a
-        configuration reading the same raw files from there reuses them instead of ingesting."""
-        shutil.copytree(self.config.data_dir / self.site.id, Path(data_dir) / self.site.id,
-                        ignore=shutil.ignore_patterns(".*"))
-
-    def copy_model(self, models_dir: Path, data_dir: Path) -> None:
-        """Copy the fitted model into another installation's models folder, with the signing key
-        it was signed with into that installation's data folder (model files verify only under
-        their installation's key)."""
-        from cyanorisk.integrity import key_path
-
-        Path(models_dir).mkdir(parents=True, exist_ok=True)
-        shutil.copy2(self.model_file, Path(models_dir) / self.model_file.name)
-        Path(data_dir).mkdir(parents=True, exist_ok=True)
-        shutil.copy2(key_path(self.config.data_dir), key_path(data_dir))
-
-    def write_config(self, path: Path, **dirs: Path) -> Path:
-        """A copy of the demo configuration at ``path`` that reads the demo's data, with
-        ``data_dir``, ``reports_dir`` or ``models_dir`` moved to the (absolute) paths given."""
-        text = self.config_path.read_text(encoding="utf-8")
-        text, n = re.subn(r'(?m)^root = "[^"]*"', f'root = "{self.root.as_posix()}"', text)
-        assert n == 1
-        for key, value in dirs.items():
-            text, n = re.subn(rf'(?m)^{key} = "[^"]*"', f'{key} = "{Path(value).as_posix()}"', text)
-            assert n == 1, f"no top-level key {key!r} in the demo configuration"
-        path.write_text(text, encoding="utf-8")
-        return path
 
 
 @pytest.fixture(scope="session")
