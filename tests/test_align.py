@@ -36,7 +36,8 @@ WHO1999 = dataclasses.replace(scheme("who1999_drinking"),
 """The 1999 alert levels (Alert Level 1 at 2,000 and 2 at 100,000 cells/mL, REFERENCES.md)
 without the Vigilance detection rule: what these tests check does not depend on the levels."""
 LAST_COLUMNS = ["last_count_cells_per_ml", "last_count_censor", "last_count_age_days", "last_level",
-                "last_sampled_at", "last_known_at"]
+                "last_sampled_at", "last_known_at", "prev_count_cells_per_ml", "prev_count_censor",
+                "prev_sampled_at", "season_first_level_at"]
 
 
 def local(stamp: str) -> pd.Timestamp:
@@ -153,7 +154,29 @@ def test_last_known_columns():
     assert got["last_level"].iloc[1] == 0.0
     assert np.isnan(got["last_level"].iloc[2])
     assert got["last_sampled_at"].iloc[2] == local("2024-01-05 12:00")
+    # the sample before the last one known (the trend of the counts)
+    assert np.isnan(got["prev_count_cells_per_ml"].iloc[1])
+    assert got["prev_count_cells_per_ml"].iloc[2] == 300.0
+    assert got["prev_sampled_at"].iloc[2] == local("2024-01-02 12:00")
     assert got["last_known_at"].iloc[2] == start_of_local_day("2024-01-07")
+    # neither 300 nor '<5000' is known to meet Alert Level 1 (2,000 cells/mL)
+    assert got["season_first_level_at"].isna().all()
+
+
+def test_season_first_level_is_the_first_known_sample_meeting_the_lowest_level():
+    # levels of WHO 1999 without Vigilance: Alert Level 1 at 2,000 cells/mL (REFERENCES.md)
+    t = totals([("a", "2024-01-02 12:00", 3_000, "=", "2024-01-09"),   # known late
+                ("a", "2024-01-05 12:00", 2_500, "=", "2024-01-06"),
+                ("a", "2024-01-08 12:00", 100, "=", "2024-01-10"),
+                ("a", "2025-01-03 12:00", 150, "=", "2025-01-05")])
+    got = last_known(issues("a", ["2024-01-05", "2024-01-07", "2024-01-09", "2024-01-11",
+                                  "2025-01-06"]), t, WHO1999, 3.0, TZ, season_start_month=1)
+    first = got["season_first_level_at"]
+    assert pd.isna(first.iloc[0])                               # nothing known yet
+    assert first.iloc[1] == local("2024-01-05 12:00")           # the first known to meet it
+    assert first.iloc[2] == local("2024-01-02 12:00")           # an earlier one became known
+    assert first.iloc[3] == local("2024-01-02 12:00")           # a count below does not undo it
+    assert pd.isna(first.iloc[4])                               # a new season starts afresh
 
 
 def test_last_known_is_per_site_and_keeps_issue_order():

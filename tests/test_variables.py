@@ -22,6 +22,7 @@ RULES = {
     "air_temp_min_c": (Resample.MIN, Fill.NEVER),
     "air_temp_max_c": (Resample.MAX, Fill.NEVER),
     "water_temp_c": (Resample.MEAN, Fill.LINEAR),
+    "water_temp_bottom_c": (Resample.MEAN, Fill.LINEAR),
     "wind_speed_ms": (Resample.MEAN, Fill.LINEAR),
     "wind_gust_ms": (Resample.MAX, Fill.LINEAR),
     "wind_dir_deg": (Resample.CIRCULAR_MEAN, Fill.CIRCULAR),

@@ -59,7 +59,7 @@ def lab_record(totals: pd.DataFrame, scheme: Scheme, lab_delay_days: float,
 
 
 def last_known(issues: pd.DataFrame, totals: pd.DataFrame, scheme: Scheme,
-               lab_delay_days: float, timezone: str) -> pd.DataFrame:
+               lab_delay_days: float, timezone: str, season_start_month: int = 1) -> pd.DataFrame:
     """The last cyanobacterial total known at each issue instant (as-of join by site).
 
     Parameters
@@ -76,33 +76,91 @@ def last_known(issues: pd.DataFrame, totals: pd.DataFrame, scheme: Scheme,
         Aligned with ``issues``, for the newest sample whose result is known at issue time:
         ``last_count_cells_per_ml``, ``last_count_censor``,
         ``last_count_age_days`` (from sampling to issue [d]), ``last_level`` (observed level of
-        that sample, 0 below the first), ``last_sampled_at``, ``last_known_at``.
+        that sample, 0 below the first), ``last_sampled_at``, ``last_known_at``; for the sample
+        before it (the trend of the counts), ``prev_count_cells_per_ml``,
+        ``prev_count_censor`` and ``prev_sampled_at``; and ``season_first_level_at``, the
+        sampling instant of the first sample of the season (seasons begin on
+        ``season_start_month``) known at issue time to meet the lowest level (NaT if none).
     """
     t = lab_record(totals, scheme, lab_delay_days, timezone)
     t = t.dropna(subset=["cyano_cells_per_ml"]).sort_values(["known_at", "sampled_at"], kind="stable")
-    # the last count is the newest sample known so far: a late result for an older sample does
-    # not replace a newer one already known
-    newest = t.groupby("site_id")["sampled_at"].cummax()
-    t = t[t["sampled_at"] >= newest]
-    left = issues[["site_id", "issue_time_utc"]].reset_index(drop=True)
-    left["issue_time_utc"] = left["issue_time_utc"].astype(UTC_NS)
-    left["_order"] = np.arange(len(left))
-    left = left.sort_values("issue_time_utc", kind="stable")
-    right = t[["site_id", "known_at", "sampled_at", "cyano_cells_per_ml", "cyano_censor", "level"]]
-    right = right.astype({"known_at": UTC_NS, "sampled_at": UTC_NS, "site_id": "str"})
-    left["site_id"] = left["site_id"].astype("str")
-    merged = pd.merge_asof(left, right, left_on="issue_time_utc", right_on="known_at",
-                           by="site_id", direction="backward", allow_exact_matches=True)
-    merged = merged.sort_values("_order").reset_index(drop=True)
-    age = (merged["issue_time_utc"] - merged["sampled_at"]) / pd.Timedelta(days=1)
-    return pd.DataFrame({
-        "last_count_cells_per_ml": merged["cyano_cells_per_ml"].to_numpy(),
-        "last_count_censor": merged["cyano_censor"].to_numpy(),
-        "last_count_age_days": age.to_numpy(),
-        "last_level": merged["level"].to_numpy(),
-        "last_sampled_at": merged["sampled_at"].array,
-        "last_known_at": merged["known_at"].array,
-    }, index=issues.index)
+    n = len(issues)
+    nat = np.full(n, np.datetime64("NaT"), dtype="datetime64[ns]")
+    out = {"last_count_cells_per_ml": np.full(n, np.nan), "last_count_censor": np.full(n, None, object),
+           "last_level": np.full(n, np.nan), "last_sampled_at": nat.copy(),
+           "last_known_at": nat.copy(), "prev_count_cells_per_ml": np.full(n, np.nan),
+           "prev_count_censor": np.full(n, None, object), "prev_sampled_at": nat.copy(),
+           "season_first_level_at": nat.copy()}
+    issue_time = _utc_naive(issues["issue_time_utc"])
+    issue_site = issues["site_id"].astype(str).to_numpy()
+    t_site = t["site_id"].astype(str).to_numpy()
+    for site in pd.unique(issue_site):
+        rows = np.flatnonzero(issue_site == site)
+        mine = t[t_site == site]
+        if mine.empty:
+            continue
+        known, sampled = _utc_naive(mine["known_at"]), _utc_naive(mine["sampled_at"])
+        pos = np.searchsorted(known, issue_time[rows], side="right") - 1  # last known row
+        # the last count is the newest sample known so far: a late result for an older sample
+        # does not replace a newer one already known
+        newest = sampled >= np.maximum.accumulate(sampled)
+        order = np.arange(len(mine))
+        last = np.maximum.accumulate(np.where(newest, order, -1))  # newest row as of each row
+        before = np.full(len(mine), -1)
+        newest_rows = np.flatnonzero(newest)
+        before[newest_rows[1:]] = newest_rows[:-1]  # the newest row before each newest row
+        has = pos >= 0
+        at = last[np.where(has, pos, 0)]
+        prev = np.where(at >= 0, before[np.maximum(at, 0)], -1)
+        ok, ok_prev = has & (at >= 0), has & (prev >= 0)
+        fill = {"last_count_cells_per_ml": "cyano_cells_per_ml",
+                "last_count_censor": "cyano_censor", "last_level": "level"}
+        for key, col in fill.items():
+            values = mine[col].to_numpy(dtype=out[key].dtype)
+            out[key][rows[ok]] = values[at[ok]]
+        out["last_sampled_at"][rows[ok]] = sampled[at[ok]]
+        out["last_known_at"][rows[ok]] = known[at[ok]]
+        out["prev_count_cells_per_ml"][rows[ok_prev]] = mine["cyano_cells_per_ml"].to_numpy(
+            dtype=float)[prev[ok_prev]]
+        out["prev_count_censor"][rows[ok_prev]] = mine["cyano_censor"].to_numpy(
+            dtype=object)[prev[ok_prev]]
+        out["prev_sampled_at"][rows[ok_prev]] = sampled[prev[ok_prev]]
+        # the first sample of the issue's season known to meet the lowest level: a late result
+        # for an older sample counts here (it is not the last count, but it was the first)
+        met = mine["level"].to_numpy(dtype=float) >= 1
+        sample_season = _season(mine["sampled_at"], timezone, season_start_month)
+        issue_season = _season(issues["issue_time_utc"].iloc[rows], timezone, season_start_month)
+        none = np.iinfo(np.int64).max
+        for season in np.unique(issue_season[has]):
+            candidate = np.where(met & (sample_season == season), sampled.view(np.int64), none)
+            running = np.minimum.accumulate(candidate)
+            pick = has & (issue_season == season)
+            first = running[pos[pick]]
+            out["season_first_level_at"][rows[pick]] = np.where(
+                first == none, np.datetime64("NaT", "ns"), first.view("datetime64[ns]"))
+    age = (issue_time - out["last_sampled_at"]) / np.timedelta64(1, "D")
+    frame = {key: out[key] for key in ("last_count_cells_per_ml", "last_count_censor")}
+    frame["last_count_age_days"] = age.astype(float)
+    frame["last_level"] = out["last_level"]
+    for key in ("last_sampled_at", "last_known_at"):
+        frame[key] = pd.DatetimeIndex(out[key]).tz_localize("UTC")
+    frame["prev_count_cells_per_ml"] = out["prev_count_cells_per_ml"]
+    frame["prev_count_censor"] = out["prev_count_censor"]
+    for key in ("prev_sampled_at", "season_first_level_at"):
+        frame[key] = pd.DatetimeIndex(out[key]).tz_localize("UTC")
+    return pd.DataFrame(frame, index=issues.index)
+
+
+def _utc_naive(instants: pd.Series) -> np.ndarray:
+    """UTC instants as naive datetime64[ns] values (NaT stays NaT)."""
+    return pd.DatetimeIndex(instants.astype(UTC_NS)).tz_localize(None).to_numpy("datetime64[ns]")
+
+
+def _season(instants: pd.Series, timezone: str, start_month: int) -> np.ndarray:
+    """The year each instant's bloom season starts in (local date; NaT gives -1)."""
+    local = pd.DatetimeIndex(instants).tz_convert(timezone)
+    year = local.year.to_numpy(dtype=float) - (local.month.to_numpy(dtype=float) < start_month)
+    return np.where(np.isnan(year), -1, year).astype(np.int64)
 
 
 def outcome_labels(issues: pd.DataFrame, totals: pd.DataFrame, scheme: Scheme,
@@ -162,12 +220,13 @@ def outcome_counts(issues: pd.DataFrame, totals: pd.DataFrame, horizon_days: int
 
 def training_table(drivers: pd.DataFrame, totals: pd.DataFrame, scheme: Scheme, site_id: str,
                    lab_delay_days: float, timezone: str,
-                   horizons: Sequence[int] = HORIZONS_DAYS) -> pd.DataFrame:
+                   horizons: Sequence[int] = HORIZONS_DAYS,
+                   season_start_month: int = 1) -> pd.DataFrame:
     """Drivers at each issue day, the last known count, and the outcome labels, for one site."""
     table = drivers.reset_index()
     table.insert(0, "site_id", site_id)
     site_totals = totals[totals["site_id"] == site_id]
-    last = last_known(table, site_totals, scheme, lab_delay_days, timezone)
+    last = last_known(table, site_totals, scheme, lab_delay_days, timezone, season_start_month)
     labels = outcome_labels(table, site_totals, scheme, horizons)
     counts = pd.DataFrame({f"max_count_log10_{h}d": outcome_counts(table, site_totals, h)
                            for h in horizons}, index=table.index)

@@ -22,10 +22,14 @@ import numpy as np
 import pandas as pd
 
 from cyanorisk.drivers import GLOSSARY, Driver, Reducer
+from cyanorisk.stratification import two_sensor_stability_j_m2
 from cyanorisk.timeofday import parse_hhmm
 
 SECONDS_PER_DAY = 86_400.0
 ESTIMATED_WATER = "water_temp_est_c"
+BOTTOM_WATER = "water_temp_bottom_c"
+DERIVED = (ESTIMATED_WATER, "surface_bottom_diff_c", "schmidt_stability_j_m2")
+"""Series computed from others, not read from the station."""
 """Water temperature estimated from air temperature (not a station variable)."""
 
 
@@ -175,6 +179,27 @@ class FeatureSettings:
     """Windows [d] of the rain drivers."""
     air_temp_windows: tuple[int, ...] = (3, 7, 30)
     """Windows [d] of the mean air temperature drivers."""
+    rain_pulse_windows: tuple[int, ...] = (7,)
+    """Windows [d] of the lagged-rain (nutrient pulse) drivers."""
+    rain_pulse_lags_days: tuple[float, ...] = (7.0,)
+    """How long before the issue time [d] the lagged-rain windows end: runoff nutrients feed
+    growth days to weeks after the rain (Reichwaldt & Ghadouani 2012, from memory)."""
+    warm_day_c: float = 20.0
+    """A day is warm when its mean air temperature is at least this [degC] (the base of the
+    warmer degree-days; common practice, no source)."""
+    warm_calm_window: int = 30
+    """Longest run of warm, calm days counted [d]."""
+    stratification_windows: tuple[int, ...] = (1, 7)
+    """Windows [d] of the stratification drivers (where the site records two depths)."""
+    surface_sensor_depth_m: float = 0.5
+    """Depth of the surface water-temperature sensor [m]."""
+    bottom_sensor_depth_m: float | None = None
+    """Depth of the deeper water-temperature sensor [m]; needed for the Schmidt stability."""
+    hypsography_depths_m: tuple[float, ...] = ()
+    """Depths [m] of the reservoir's hypsography (area at each depth), shallowest first; with
+    none, a cone reaching zero area just below the deeper sensor is assumed."""
+    hypsography_areas_m2: tuple[float, ...] = ()
+    """Horizontal areas [m2] at ``hypsography_depths_m``."""
     solar_windows: tuple[int, ...] = (7,)
     """Windows [d] of the sunshine energy drivers."""
     water_temp_windows: tuple[int, ...] = (1, 7)
@@ -197,6 +222,20 @@ class FeatureSettings:
             raise ValueError("min_good_share must be in (0, 1]")
         if not self.water_temp_tau_days > 0:
             raise ValueError("water_temp_tau_days must be a positive number of days")
+        if len(self.hypsography_depths_m) != len(self.hypsography_areas_m2):
+            raise ValueError("hypsography_depths_m and hypsography_areas_m2 must have the same "
+                             "number of values")
+        if self.bottom_sensor_depth_m is not None and \
+                not self.bottom_sensor_depth_m > self.surface_sensor_depth_m:
+            raise ValueError("bottom_sensor_depth_m must be deeper than surface_sensor_depth_m")
+
+    def hypsography(self) -> tuple[np.ndarray, np.ndarray]:
+        """Depths [m] and areas [m2] of the hypsography (a cone where none is given)."""
+        if self.hypsography_depths_m:
+            return (np.asarray(self.hypsography_depths_m, float),
+                    np.asarray(self.hypsography_areas_m2, float))
+        deepest = float(self.bottom_sensor_depth_m or 1.0) + 0.5
+        return np.array([0.0, deepest]), np.array([1.0, 0.0])
 
     def windows(self, family: Driver) -> tuple[int, ...]:
         """The windows [d] a driver family is computed over."""
@@ -231,7 +270,13 @@ class _Windowed:
             self._cums[id(values)] = hit
         return hit[1]
 
-    def size(self, days: int) -> int:
+    def shifted(self, intervals: int) -> _Windowed:
+        """The same questions for windows ending ``intervals`` earlier."""
+        other = _Windowed(self.step_h, self.end - intervals, self.n_grid)
+        other._cums = self._cums  # the cumulative sums do not depend on the window's end
+        return other
+
+    def size(self, days: float) -> int:
         return int(round(days * 24 / self.step_h))
 
     def counts(self, mask: np.ndarray, days: int) -> tuple[np.ndarray, np.ndarray]:
@@ -307,19 +352,29 @@ class FeatureBuilder:
         # intervals [t, t + step) entirely before the issue instant
         end = np.floor(np.asarray((issue - weather.index[0]) / step)).astype(np.int64)
         win = _Windowed(step / pd.Timedelta(hours=1), end, len(weather))
-        series = {v: self._series(weather, v) for v in _variables() if v in weather}
+        series = {v: self._series(weather, v) for v in (*_variables(), BOTTOM_WATER)
+                  if v in weather}
         if "air_temp_c" in series:
             series[ESTIMATED_WATER] = self._estimated_water(series["air_temp_c"], win)
+        if {"water_temp_c", "water_temp_bottom_c"} <= set(series):
+            series.update(self._stratification(series["water_temp_c"],
+                                               series["water_temp_bottom_c"]))
         cols: dict[str, np.ndarray] = {}
         windows_of: dict[str, set[int]] = {}
         for family in GLOSSARY:
             if family.variable not in series:
                 continue
+            if family.reducer is Reducer.DAYS_RUN:
+                if "air_temp_c" in series:
+                    for w in s.windows(family):
+                        cols[family.name(w)] = self._warm_calm_days(
+                            series["air_temp_c"], series["wind_speed_ms"], win, w)
+                continue
             for param in s.params(family):
                 values = self._per_interval(family, series[family.variable], param)
                 for w in s.windows(family):
                     cols[family.name(w, param)] = self._reduce(family, series[family.variable],
-                                                               values, w, win)
+                                                               values, w, win, param)
             windows_of.setdefault(family.variable, set()).update(s.windows(family))
         if "air_temp_c" not in weather and {"air_temp_min_c", "air_temp_max_c"} <= set(weather):
             self._daily_min_max(weather, win, cols)
@@ -358,16 +413,60 @@ class FeatureBuilder:
         return np.where(x.usable, x.values, 0.0)
 
     def _reduce(self, family: Driver, x: _Series, values: np.ndarray, days: int,
-                win: _Windowed) -> np.ndarray:
+                win: _Windowed, param: float | None = None) -> np.ndarray:
         """One driver of a family over windows of ``days`` before each issue instant."""
         if family.reducer is Reducer.LONGEST_RUN:
             return self._longest_run(values > 0, win, days, x.good)
         if family.reducer is Reducer.TOTAL:
             return self._gate(win.total(values, days), win, x.good, days)
+        if family.reducer is Reducer.LAGGED_TOTAL:
+            lagged = win.shifted(win.size(param))
+            return self._gate(lagged.total(values, days), lagged, x.good, days)
         mean = self._mean(win, values, x.usable, x.good, days)
         if family.reducer is Reducer.INTEGRAL:
             return mean * (24.0 * days) * family.scale
         return mean
+
+    def _stratification(self, surface: _Series, bottom: _Series) -> dict[str, _Series]:
+        """Surface minus bottom temperature [degC] and, where the deeper sensor's depth is set,
+        the Schmidt stability of the two-sensor profile [J m-2] (Idso 1973), per interval."""
+        s = self.settings
+        usable = surface.usable & bottom.usable
+        good, filled = surface.good & bottom.good, (surface.filled | bottom.filled) & usable
+        diff = np.where(usable, surface.values - bottom.values, np.nan)
+        out = {"surface_bottom_diff_c": _Series(diff, usable, good, filled)}
+        if s.bottom_sensor_depth_m is not None:
+            depths, areas = s.hypsography()
+            stability = two_sensor_stability_j_m2(
+                np.where(usable, surface.values, 4.0), np.where(usable, bottom.values, 4.0),
+                s.surface_sensor_depth_m, s.bottom_sensor_depth_m, depths, areas)
+            out["schmidt_stability_j_m2"] = _Series(np.where(usable, stability, np.nan), usable,
+                                                    good, filled)
+        return out
+
+    def _warm_calm_days(self, air: _Series, wind: _Series, win: _Windowed, most: int) -> np.ndarray:
+        """Consecutive warm, calm days up to each issue time [d] (:attr:`Reducer.DAYS_RUN`):
+        the 24-hour windows ending 0, 1, 2 ... days before it, counted while each is warm
+        (mean air temperature >= ``warm_day_c``) and calm (mean wind < ``calm_threshold_ms``);
+        NaN when the day just before the issue time lacks good readings."""
+        s = self.settings
+        run = np.zeros(len(win.end))
+        going = np.ones(len(win.end), dtype=bool)
+        first = None
+        air_values = np.where(air.usable, air.values, 0.0)  # one array each: cumulative sums
+        wind_values = np.where(wind.usable, wind.values, 0.0)  # are cached by array
+        for k in range(most):
+            day = win.shifted(win.size(k))
+            air_c = self._mean(day, air_values, air.usable, air.good, 1)
+            wind_ms = self._mean(day, wind_values, wind.usable, wind.good, 1)
+            warm_calm = (air_c >= s.warm_day_c) & (wind_ms < s.calm_threshold_ms)
+            if first is None:
+                first = np.isnan(air_c) | np.isnan(wind_ms)
+            going &= warm_calm
+            run += going
+            if not going.any():
+                break
+        return np.where(first, np.nan, run)
 
     def _daily_min_max(self, weather: pd.DataFrame, win: _Windowed, cols: dict) -> None:
         """Degree-days from daily minimum and maximum only: the single-sine method per day."""
@@ -446,4 +545,4 @@ class FeatureBuilder:
 def _variables() -> list[str]:
     """Weather variables some driver family is computed from, in glossary order."""
     return list(dict.fromkeys(d.variable for d in GLOSSARY
-                              if d.variable is not None and d.variable != ESTIMATED_WATER))
+                              if d.variable is not None and d.variable not in DERIVED))
