@@ -3,8 +3,11 @@
 ``demo_site``: the fictitious demo reservoir (cyanorisk.demo) built once per test session with a
 smaller record than ``cyanorisk demo`` makes (8 years instead of 12, the seed of
 src/cyanorisk/data/demo.toml), ingested by its site pipeline with the demo configuration
-re-rooted in a temporary folder (as tests/test_cli.py does), its training table built and its
-models fitted and saved under the temporary models/ folder. Tests must not change what it holds;
+re-rooted in a temporary folder (as tests/test_cli.py does), with the model family and its
+calibration pinned (the ordinal family, uncalibrated: the fastest, so that the suite's many
+backtests replay quickly; the choice itself is tested in tests/test_outlook.py and by
+``cyanorisk demo`` in tests/test_cli.py), its training table built and its models fitted and
+saved under the temporary models/ folder. Tests must not change what it holds;
 tests that write reports or models point a copy of the configuration elsewhere with
 :meth:`DemoSite.write_config` (a copy that keeps ``data_dir`` reuses the session's clean tables).
 """
@@ -63,7 +66,11 @@ def demo_site(tmp_path_factory) -> DemoSite:
     config_path = root / "demo.toml"
     text = embedded_demo_text()
     assert re.search(r'(?m)^root = "\.\."', text)
-    config_path.write_text(re.sub(r'(?m)^root = "\.\."', 'root = "."', text), encoding="utf-8")
+    text = re.sub(r'(?m)^root = "\.\."', 'root = "."', text)
+    text, n = re.subn(r'(?m)^family = "auto".*$', 'family = "ordinal"', text)
+    text, m = re.subn(r'(?m)^calibration = "auto".*$', 'calibration = "none"', text)
+    assert n == m == 1
+    config_path.write_text(text, encoding="utf-8")
     config = load_config(config_path, check_files=False)
     write_demo(config.demo.out_dir, DEMO_YEARS, DEMO_SEED)
     config = load_config(config_path)

@@ -462,6 +462,7 @@ def random_weather() -> pd.DataFrame:
     columns = {
         "air_temp_c": 15 + 8 * rng.standard_normal(n),
         "water_temp_c": 18 + rng.standard_normal(n),
+        "water_temp_bottom_c": 14 + rng.standard_normal(n),
         "wind_speed_ms": rng.gamma(2.0, 1.5, n),
         "rain_mm": np.where(rng.uniform(size=n) < 0.1, rng.exponential(1.0, n), 0.0),
         "solar_wm2": np.clip(400 * rng.standard_normal(n), 0, None),
@@ -478,7 +479,10 @@ def random_weather() -> pd.DataFrame:
 
 LOOKAHEAD_DAYS = pd.date_range("2024-09-22", "2024-10-28", freq="D")
 LOOKAHEAD_SETTINGS = FeatureSettings(degree_day_windows=(1, 7, 14), air_temp_windows=(3, 7),
-                                     min_good_share=0.6)
+                                     min_good_share=0.6, bottom_sensor_depth_m=6.0,
+                                     warm_day_c=12.0, calm_threshold_ms=3.5)
+"""Every family of the glossary, the stratification drivers and the lagged rain included; a
+low warm-day temperature and a high calm threshold so that warm calm days occur."""
 
 
 @settings(max_examples=40, deadline=None)
@@ -499,7 +503,8 @@ def test_no_look_ahead(day, offset, seed, truncate):
         rng = np.random.default_rng(seed)
         changed = weather.copy()
         k = int(after.sum())
-        for name in ("air_temp_c", "water_temp_c", "wind_speed_ms", "rain_mm", "solar_wm2"):
+        for name in ("air_temp_c", "water_temp_c", "water_temp_bottom_c", "wind_speed_ms",
+                     "rain_mm", "solar_wm2"):
             values = changed[name].to_numpy(copy=True)
             values[after] = np.where(rng.uniform(size=k) < 0.2, np.nan, rng.uniform(0.0, 40.0, k))
             changed[name] = values
@@ -510,4 +515,7 @@ def test_no_look_ahead(day, offset, seed, truncate):
     got = builder.transform(changed, days=[day])
     assert before["issue_time_utc"].iloc[0] == issue
     assert int(before.notna().sum(axis=1).iloc[0]) > 20  # the row holds real values to compare
+    new = ["rain_mm_7d_lag_7d", "warm_calm_days_30d", "surface_bottom_diff_c_7d",
+           "schmidt_stability_j_m2_7d"]
+    assert set(new) <= set(before.columns)  # the new drivers are among those compared
     pd.testing.assert_frame_equal(got, before, check_exact=True)

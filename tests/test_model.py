@@ -35,6 +35,7 @@ from cyanorisk.model import (
     prepare,
     read_bundle,
 )
+from cyanorisk.outlook import Calibration, OrdinalOutlook, Outlook
 
 pytestmark = pytest.mark.filterwarnings("error")
 
@@ -334,8 +335,12 @@ def saved(tmp_path):
     risk = RiskModel(("a", "b", "c"), ("level 1", "level 2")).fit(X, y)
     count = CountModel(("a", "b", "c")).fit(X, np.where(np.isnan(y), np.nan, y + 2.5))
     clim = ClimatologyModel(("level 1", "level 2")).fit(dates, y)
+    outlook = Outlook(OrdinalOutlook(("a", "b", "c"), ("level 1", "level 2"), (7,)).fit(X, {7: y}),
+                      Calibration([{"method": "none"}] * 2))
+    persistence = PersistenceModel(("level 1", "level 2"), (7,)).fit()
     path = tmp_path / "lake.json"
-    path.write_text(bundle_text(SiteModels("lake", risk, count, clim, {}), KEY), encoding="utf-8")
+    path.write_text(bundle_text(SiteModels("lake", risk, count, clim, {}, {}, outlook, persistence),
+                                KEY), encoding="utf-8")
     return path, X, dates, (risk, count, clim)
 
 
@@ -346,7 +351,7 @@ KEY = bytes(range(32))
 def test_json_round_trip_gives_identical_predictions(saved):
     path, X, dates, (risk, count, clim) = saved
     payload = json.loads(path.read_text(encoding="utf-8"))
-    assert (payload["format"], payload["format_version"]) == ("cyanorisk-model", 3)
+    assert (payload["format"], payload["format_version"]) == ("cyanorisk-model", 4)
     assert payload["cyanorisk_version"] == cyanorisk.__version__
     loaded = read_bundle(path, KEY)
     assert loaded.site_id == "lake"

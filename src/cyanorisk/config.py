@@ -56,6 +56,7 @@ from cyanorisk.spec import (
     DEFAULT_AUTHORITY,
     DEFAULT_HORIZON_DAYS,
     DEFAULT_LAB_DELAY_DAYS,
+    DEFAULT_OUTLOOK_DAYS,
     DEFAULT_SEASON_START_MONTH,
     SITE_ID,
     SiteSpec,
@@ -113,6 +114,20 @@ class ModelSettings:
     """A report whose last weather reading is older than this says 'insufficient data'."""
     stale_sample_days: float = 45.0
     """A report whose last known sample is older than this says 'insufficient data'."""
+    outlook_days: int = DEFAULT_OUTLOOK_DAYS
+    """Longest horizon of the outlook [d]: probabilities are given for every horizon from 1
+    day to this (1 to 14; at least ``horizon_days``)."""
+    warn_within_days: int | None = None
+    """A level is warned of when its probability within any horizon up to this many days [d]
+    reaches its threshold; default: ``outlook_days`` (a longer horizon can raise a warning)."""
+    family: str = "auto"
+    """Model family: 'auto' (``train`` picks the one with the better season-blocked Brier
+    score), 'ordinal' (the transparent proportional-odds model) or 'boosted' (gradient
+    boosting with monotonic constraints)."""
+    calibration: str = "auto"
+    """Calibration of the probabilities on out-of-season forecasts: 'auto' (``train`` keeps
+    whichever of none, sigmoid and, with a thousand forecasts or more, isotonic gives the lower
+    season-blocked Brier score), 'isotonic', 'sigmoid' or 'none'."""
 
 
 @dataclass(frozen=True)
@@ -180,7 +195,9 @@ class Site:
             drivers=tuple(m.drivers) if m.drivers else DEFAULT_DRIVERS,
             horizon_days=m.horizon_days, season_start_month=m.season_start_month,
             lab_delay_days=self.samples.lab_delay_days if self.samples else DEFAULT_LAB_DELAY_DAYS,
-            stale_weather_days=m.stale_weather_days, stale_sample_days=m.stale_sample_days)
+            stale_weather_days=m.stale_weather_days, stale_sample_days=m.stale_sample_days,
+            outlook_days=m.outlook_days, warn_within_days=m.warn_within_days, family=m.family,
+            calibration=m.calibration)
 
 
 @dataclass(frozen=True)

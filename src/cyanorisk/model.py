@@ -45,9 +45,10 @@ from cyanorisk.errors import ModelFileError
 from cyanorisk.version import __version__
 
 FORMAT = "cyanorisk-model"
-FORMAT_VERSION = 3
-"""Version 2: driver names of the glossary (``calm_h_7d``); version 1 files are refused with the
-advice to retrain."""
+FORMAT_VERSION = 4
+"""Version 2: driver names of the glossary (``calm_h_7d``); version 4: the outlook at every
+horizon, its family and calibration, and persistence as a probability. Files of other versions
+are refused with the advice to retrain."""
 
 Z_975 = 1.959963984540054
 """The 97.5% quantile of the standard normal distribution (for 95% intervals)."""
@@ -78,18 +79,47 @@ def prepare(table: pd.DataFrame) -> pd.DataFrame:
     - ``last_count_log10`` = log10(count + 1) of the last known total [log10 cells mL-1]; a
       count censored below ('<100') enters as half its limit, a common substitution (common
       practice, no source), with ``last_count_censored`` = 1 so the model can tell;
+    - ``count_growth_per_d``: the net specific growth rate between the last two known results,
+      r = ln((N2 + 1) / (N1 + 1)) / (t2 - t1) [d-1] (exponential growth between two counts,
+      the usual definition of a specific growth rate: Reynolds 2006, The Ecology of
+      Phytoplankton, ch. 5, from memory), with the same substitution for censored counts; NaN
+      when there are not two results, or they were taken less than half a day apart;
+    - ``growth_pair_age_days``: days from the older sample of that pair to the issue time [d];
+    - ``days_since_level_met_d``: days from the first sample of the season known to meet the
+      lowest level to the issue time [d]; 0 while no sample of the season has;
     - ``season_sin``, ``season_cos``: day of year on the unit circle (annual cycle).
     """
     out = table.copy()
-    count = out["last_count_cells_per_ml"].astype(float)
-    censored = (out["last_count_censor"] == "<").to_numpy()
-    count = np.where(censored, count / 2.0, count)
+    count = _substituted(out["last_count_cells_per_ml"], out["last_count_censor"])
     out["last_count_log10"] = np.log10(count + 1.0)
-    out["last_count_censored"] = censored.astype(float)
+    out["last_count_censored"] = (out["last_count_censor"] == "<").to_numpy().astype(float)
+    if "prev_count_cells_per_ml" in out:
+        issue, last, prev_at, first = (_days(out[c]) for c in (
+            "issue_time_utc", "last_sampled_at", "prev_sampled_at", "season_first_level_at"))
+        prev = _substituted(out["prev_count_cells_per_ml"], out["prev_count_censor"])
+        span = last - prev_at
+        with np.errstate(invalid="ignore", divide="ignore"):
+            rate = (np.log(count + 1.0) - np.log(prev + 1.0)) / span
+        out["count_growth_per_d"] = np.where(span >= 0.5, rate, np.nan)
+        out["growth_pair_age_days"] = issue - prev_at
+        since = issue - first
+        out["days_since_level_met_d"] = np.where(np.isnan(since), 0.0, since)
     doy = pd.DatetimeIndex(pd.to_datetime(out["issue_date"])).day_of_year.to_numpy()
     out["season_sin"] = np.sin(2 * np.pi * doy / 365.25)
     out["season_cos"] = np.cos(2 * np.pi * doy / 365.25)
     return out
+
+
+def _days(instants: pd.Series) -> np.ndarray:
+    """UTC instants as days since 1970 [d] (NaN for NaT), for differences in days."""
+    ns = pd.DatetimeIndex(pd.to_datetime(instants, utc=True)).asi8.astype(float)
+    return np.where(pd.isna(instants).to_numpy(), np.nan, ns / 86_400e9)
+
+
+def _substituted(count: pd.Series, censor: pd.Series) -> np.ndarray:
+    """Counts [cells mL-1] with a count censored below ('<100') as half its limit."""
+    value = count.to_numpy(dtype=float)
+    return np.where((censor == "<").to_numpy(), value / 2.0, value)
 
 
 def ordinal_outcome(table: pd.DataFrame, level_columns: Sequence[str]) -> np.ndarray:
@@ -355,14 +385,23 @@ class RiskModel:
         self.class_counts_ = {int(c): int((yl == c).sum()) for c in self.classes_}
         return self
 
+    def _imputed(self, X: pd.DataFrame, median: np.ndarray,
+                 indicators: dict[str, list[str]]) -> np.ndarray:
+        """The drivers with missing values replaced by ``median``, then the indicators (1 where
+        any of their members is missing), as columns of one array."""
+        drivers = list(self.drivers)
+        V = X[drivers].to_numpy(dtype=float)
+        missing = np.isnan(V)
+        where = {d: i for i, d in enumerate(drivers)}
+        flags = [missing[:, [where[m] for m in members]].any(axis=1).astype(float)
+                 for members in indicators.values()]
+        return np.column_stack([np.where(missing, median, V), *flags]) if flags else \
+            np.where(missing, median, V)
+
     def _impute(self, X: pd.DataFrame, median: np.ndarray,
                 indicators: dict[str, list[str]]) -> pd.DataFrame:
-        drivers = list(self.drivers)
-        Z = X[drivers].astype(float).copy()
-        for name, members in indicators.items():
-            Z[name] = Z[members].isna().any(axis=1).astype(float)
-        Z[drivers] = Z[drivers].fillna(pd.Series(median, index=drivers))
-        return Z
+        return pd.DataFrame(self._imputed(X, median, indicators), index=X.index,
+                            columns=[*self.drivers, *indicators])
 
     def _standardised(self, X: pd.DataFrame) -> pd.DataFrame:
         if not hasattr(self, "coef_"):
@@ -380,14 +419,20 @@ class RiskModel:
 
         P(reach level k) = P(Y >= k) = 1 - F(cut_k - x.beta), F the logistic CDF; decreasing in k.
         """
-        eta = self._standardised(X).to_numpy() @ self.coef_
-        out = {}
-        for k, name in enumerate(self.levels):
-            if k < len(self.cuts_):
-                out[name] = 1.0 - expit(self.cuts_[k] - eta)
-            else:  # a level never reached in training: no evidence it can be reached
-                out[name] = np.zeros(len(eta))
-        return pd.DataFrame(out, index=X.index)
+        if not hasattr(self, "coef_"):
+            raise NotFittedError("this RiskModel is not fitted yet: call fit() or load a saved "
+                                 "model first")
+        return pd.DataFrame(self.proba_array(X), columns=list(self.levels), index=X.index)
+
+    def proba_array(self, X: pd.DataFrame) -> np.ndarray:
+        """:meth:`predict_proba` as an array (days, levels)."""
+        _check_columns(X, list(self.drivers))
+        s = self.scaling_
+        eta = ((self._imputed(X, s.median, s.indicators) - s.mean) / s.scale) @ self.coef_
+        out = np.zeros((len(eta), len(self.levels)))  # a level never reached in training: 0
+        for k in range(min(len(self.levels), len(self.cuts_))):
+            out[:, k] = 1.0 - expit(self.cuts_[k] - eta)
+        return out
 
     def explain(self, X: pd.DataFrame, top: int = 5) -> list[list[dict[str, Any]]]:
         """For each row, the drivers that push the forecast most: contribution to the log-odds
@@ -567,22 +612,65 @@ class ClimatologyModel:
 
 
 class PersistenceModel:
-    """The last observed level stays: probability 1 for every level up to it, 0 above.
+    """Persistence as a probability: how often, in the training seasons, a day whose last known
+    result stood at level j went on to reach level k within the horizon.
 
-    With no known sample the forecast is missing (NaN), never an all-clear.
+    Fitted (:meth:`fit` with the last levels and the outcomes), it gives for each last level j,
+    level k and horizon h the share of labelled training days with last level j that reached k
+    within h: the fair probabilistic reference of a forecast that only knows the last result
+    (a Markov-chain climatology of the levels; common practice in forecast verification, no
+    source). A last level never seen in training, or an unfitted model, falls back to the plain
+    rule: probability 1 for every level up to the last one, 0 above. With no known sample the
+    forecast is missing (NaN), never an all-clear.
     """
 
-    def __init__(self, levels: Sequence[str] = ("level 1",)) -> None:
+    def __init__(self, levels: Sequence[str] = ("level 1",),
+                 horizons: Sequence[int] = (7,)) -> None:
         self.levels = levels
+        self.horizons = horizons
 
-    def fit(self, *_: Any) -> PersistenceModel:
-        self.fitted_ = True
+    def fit(self, last_level: np.ndarray | None = None,
+            outcomes: np.ndarray | None = None) -> PersistenceModel:
+        """Learn the shares from ``last_level`` (0 .. levels, NaN unknown) and ``outcomes`` of
+        shape (days, levels, horizons) (1, 0 or NaN); with neither, keep the plain rule."""
+        L, H = len(self.levels), len(self.horizons)
+        rates = np.full((L + 1, L, H), np.nan)
+        if last_level is not None and outcomes is not None:
+            last = np.asarray(last_level, dtype=float)
+            o = np.asarray(outcomes, dtype=float)
+            for j in range(L + 1):
+                rows = o[last == j]
+                if len(rows):
+                    with np.errstate(invalid="ignore", divide="ignore"):
+                        rates[j] = np.nansum(rows, axis=0) / (~np.isnan(rows)).sum(axis=0)
+        rule = (np.arange(L + 1)[:, None] >= np.arange(1, L + 1)[None, :]).astype(float)
+        self.rates_ = np.where(np.isnan(rates), rule[:, :, None], rates)
         return self
 
-    def predict_proba(self, last_level: np.ndarray) -> pd.DataFrame:
+    def predict(self, last_level: np.ndarray) -> np.ndarray:
+        """Probabilities of shape (days, levels, horizons)."""
+        if not hasattr(self, "rates_"):
+            self.fit()
         last = np.asarray(last_level, dtype=float)
-        return pd.DataFrame({name: np.where(np.isnan(last), np.nan, (last >= k + 1).astype(float))
-                             for k, name in enumerate(self.levels)})
+        known = ~np.isnan(last)
+        out = np.full((len(last), len(self.levels), len(self.horizons)), np.nan)
+        out[known] = self.rates_[np.clip(last[known].astype(int), 0, len(self.levels))]
+        return out
+
+    def predict_proba(self, last_level: np.ndarray, horizon_days: int | None = None) -> pd.DataFrame:
+        """Probabilities at one horizon (default: the first) as a table of levels."""
+        j = 0 if horizon_days is None else list(self.horizons).index(int(horizon_days))
+        return pd.DataFrame(self.predict(last_level)[:, :, j], columns=list(self.levels))
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"levels": list(self.levels), "horizons": [int(h) for h in self.horizons],
+                "rates": self.rates_.tolist()}
+
+    @classmethod
+    def from_dict(cls, d: dict[str, Any]) -> PersistenceModel:
+        m = cls(tuple(d["levels"]), tuple(int(h) for h in d["horizons"]))
+        m.rates_ = np.array(d["rates"], dtype=float)
+        return m
 
 
 @dataclass
@@ -598,20 +686,37 @@ class SiteModels:
     normals: dict[str, list[float | None]] = field(default_factory=dict)
     """The usual value of each driver per dekad of the year (36 values; see
     :func:`cyanorisk.training.driver_normals`)."""
+    outlook: Any = None
+    """The outlook at every horizon (:class:`cyanorisk.outlook.Outlook`): the family ``train``
+    chose, calibrated. ``risk`` is the ordinal model at the headline horizon, kept for the
+    coefficients and the explanations (read the same way whichever family gives the
+    probabilities)."""
+    persistence: PersistenceModel | None = None
+    """Persistence as a probability, learnt from the training seasons."""
+
+    @property
+    def drivers(self) -> list[str]:
+        """The drivers the outlook reads (the explanations' model may have left some out)."""
+        return list(dict.fromkeys([*self.outlook.model.drivers, *self.risk.drivers]))
 
     def to_dict(self) -> dict[str, Any]:
         """The JSON-ready body of the model file."""
         return {"site_id": self.site_id, "card": self.card, "risk": self.risk.to_dict(),
                 "count": self.count.to_dict(), "climatology": self.climatology.to_dict(),
-                "normals": self.normals}
+                "normals": self.normals, "outlook": self.outlook.to_dict(),
+                "persistence": self.persistence.to_dict()}
 
     @classmethod
     def from_dict(cls, body: dict[str, Any]) -> SiteModels:
+        from cyanorisk.outlook import Outlook
+
         normals = {str(k): [None if v is None else float(v) for v in vs]
                    for k, vs in body["normals"].items()}
         return cls(str(body["site_id"]), RiskModel.from_dict(body["risk"]),
                    CountModel.from_dict(body["count"]),
-                   ClimatologyModel.from_dict(body["climatology"]), dict(body["card"]), normals)
+                   ClimatologyModel.from_dict(body["climatology"]), dict(body["card"]), normals,
+                   Outlook.from_dict(body["outlook"]),
+                   PersistenceModel.from_dict(body["persistence"]))
 
 
 # ---------------------------------------------------------------------------------------------
@@ -654,6 +759,8 @@ _BODY_SCHEMA: dict[str, Any] = {
               "cov": list, "resid_var": float, "df_resid": float, "t_quantile": float,
               "n_train": int},
     "climatology": {"levels": [str], "window_days": int, "rates": list},
+    "outlook": {"family": str, "model": dict, "calibration": {"maps": list}},
+    "persistence": {"levels": [str], "horizons": _NUMBERS, "rates": list},
 }
 """The parts of a model file's body and their kinds (checked before any is used)."""
 

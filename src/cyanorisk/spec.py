@@ -29,6 +29,9 @@ DEFAULT_LAB_DELAY_DAYS = 3.0
 HISTORY_DAYS = 120
 """Days of history a daily report shows (plots and the trend of the probabilities)."""
 DEFAULT_HORIZON_DAYS = 7
+DEFAULT_OUTLOOK_DAYS = 14
+FAMILIES = ("auto", "ordinal", "boosted")
+CALIBRATIONS = ("auto", "isotonic", "sigmoid", "none")
 DEFAULT_SEASON_START_MONTH = 7
 DEFAULT_AUTHORITY = "the local water authority"
 
@@ -84,6 +87,15 @@ class SiteSpec:
     warn_at: Mapping[str, float] | None = None
     """Warning thresholds set in the configuration, by level: they override tuned ones."""
     warn_at_source: str = ""
+    outlook_days: int = DEFAULT_OUTLOOK_DAYS
+    """Longest horizon of the outlook [d] (probabilities for every horizon from 1 to this)."""
+    warn_within_days: int | None = None
+    """Warn when the probability within any horizon up to this [d] reaches the threshold
+    (default: ``outlook_days``)."""
+    family: str = "auto"
+    """'auto', 'ordinal' or 'boosted' (see :mod:`cyanorisk.outlook`)."""
+    calibration: str = "auto"
+    """'auto', 'isotonic', 'sigmoid' or 'none'."""
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "drivers", tuple(canonical_driver(d) for d in self.drivers))
@@ -91,6 +103,28 @@ class SiteSpec:
             raise ValueError("horizon_days must be between 1 and 14")
         if not 1 <= self.season_start_month <= 12:
             raise ValueError("season_start_month must be a month number, 1 to 12")
+        if not self.horizon_days <= self.outlook_days <= 14:
+            raise ValueError(f"outlook_days must be between horizon_days ({self.horizon_days}) "
+                             "and 14")
+        if self.warn_within_days is not None and \
+                not 1 <= self.warn_within_days <= self.outlook_days:
+            raise ValueError(f"warn_within_days must be between 1 and outlook_days "
+                             f"({self.outlook_days})")
+        if self.family not in FAMILIES:
+            raise ValueError(f"family must be one of {', '.join(FAMILIES)}, not {self.family!r}")
+        if self.calibration not in CALIBRATIONS:
+            raise ValueError(f"calibration must be one of {', '.join(CALIBRATIONS)}, not "
+                             f"{self.calibration!r}")
+
+    @property
+    def horizons(self) -> list[int]:
+        """The outlook's horizons [d]: 1 to ``outlook_days``."""
+        return list(range(1, self.outlook_days + 1))
+
+    @property
+    def warn_horizon_days(self) -> int:
+        """The longest horizon [d] whose probability can raise a warning."""
+        return self.warn_within_days or self.outlook_days
 
     @property
     def levels(self) -> list[str]:

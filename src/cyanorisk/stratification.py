@@ -86,5 +86,7 @@ def two_sensor_stability_j_m2(surface_c: np.ndarray, bottom_c: np.ndarray, top_m
     for lo in range(0, len(surface), 20000):  # bounded memory: 20,000 profiles at a time
         hi = lo + 20000
         temp = surface[lo:hi] + (bottom[lo:hi] - surface[lo:hi]) * share
-        out[lo:hi] = water_density_kg_m3(temp) @ weight
+        # a row-wise sum, not a matrix product: the same profile gives the same number
+        # whatever else is in the batch (BLAS may block a product differently)
+        out[lo:hi] = (water_density_kg_m3(temp) * weight).sum(axis=1)
     return out

@@ -19,7 +19,7 @@ import pandas as pd
 
 from cyanorisk.align import level_slug
 from cyanorisk.align import training_table as align_training_table
-from cyanorisk.drivers import Effect, lookup, stand_in
+from cyanorisk.drivers import lookup, stand_in
 from cyanorisk.features import FeatureBuilder
 from cyanorisk.ingest.samples import empty_totals
 from cyanorisk.model import (
@@ -32,9 +32,23 @@ from cyanorisk.model import (
     ordinal_outcome,
     prepare,
 )
+from cyanorisk.outlook import (
+    FAMILIES,
+    MIN_ISOTONIC_EVENTS,
+    MIN_ISOTONIC_FORECASTS,
+    Calibration,
+    OrdinalOutlook,
+    Outlook,
+    coherent,
+    family_model,
+    fit_signed,
+)
 from cyanorisk.spec import SiteSpec
 from cyanorisk.variables import WEATHER_VARIABLES
 from cyanorisk.verify import brier_score, roc_auc
+
+__all__ = ["Fitted", "available_drivers", "choose_family", "cross_validate", "fit_models",
+           "fit_signed", "fit_site", "outcomes", "season_of", "training_table"]
 from cyanorisk.version import __version__
 
 
@@ -45,7 +59,7 @@ def training_table(spec: SiteSpec, weather: pd.DataFrame,
     drivers = FeatureBuilder(spec.features, spec.timezone).transform(weather)
     totals = empty_totals() if totals is None else totals
     return align_training_table(drivers, totals, spec.scheme, spec.site_id, spec.lab_delay_days,
-                                spec.timezone)
+                                spec.timezone, season_start_month=spec.season_start_month)
 
 
 @dataclass(frozen=True)
@@ -135,50 +149,179 @@ def label_columns(spec: SiteSpec, horizon_days: int | None = None) -> list[str]:
     return [f"reach_{level_slug(n)}_{h}d" for n in spec.levels]
 
 
-def fit_signed(drivers: list[str], levels: list[str], horizon_days: int, X: pd.DataFrame,
-               y: np.ndarray) -> RiskModel:
-    """The risk model fitted with the directions of the driver glossary.
+def outcomes(X: pd.DataFrame, spec: SiteSpec) -> tuple[dict[int, np.ndarray], np.ndarray]:
+    """The outcomes at every horizon of the outlook: ordinal (highest level reached, NaN
+    unknown) by horizon, and per level as an array (days, levels, horizons) of 1, 0 or NaN."""
+    ordinal = {h: ordinal_outcome(X, label_columns(spec, h)) for h in spec.horizons}
+    L = len(spec.levels)
+    o = np.stack([np.where(np.isnan(ordinal[h])[:, None], np.nan,
+                           (ordinal[h][:, None] >= np.arange(1, L + 1)).astype(float))
+                  for h in spec.horizons], axis=2)
+    return ordinal, o
 
-    A driver whose fitted effect runs against the direction the literature gives it (warmth,
-    light and calm raise the risk, wind mixing and flushing lower it; :mod:`cyanorisk.drivers`)
-    is left out, not reversed, and the model is fitted again without it, until no driver is
-    against its direction. The most confidently reversed driver goes first, so that of two
-    overlapping drivers (water temperature and degree-days rise together) the one that carries
-    the signal stays. What was left out, and why, is kept in ``left_out_``.
+
+@dataclass
+class Fitted:
+    """What one fit of a site's models produced (see :func:`fit_models`)."""
+
+    risk: RiskModel
+    """The ordinal model at the headline horizon (coefficients and explanations)."""
+    count: CountModel
+    climatology: ClimatologyModel
+    outlook: Outlook
+    persistence: PersistenceModel
+    choice: dict[str, Any]
+    """How the family was chosen: scores per family, the reason, the calibration methods, and
+    the chosen family's out-of-season forecasts (``forecasts``, not saved)."""
+
+
+def season_blocks(seasons: np.ndarray, most: int = 5) -> list[np.ndarray]:
+    """The seasons split into at most ``most`` blocks of consecutive seasons (one season each
+    when there are few): the folds of season-blocked cross-validation."""
+    unique = np.unique(seasons)
+    return [b for b in np.array_split(unique, min(most, len(unique))) if len(b)]
+
+
+def _fit_family(family: str, drivers: list[str], spec: SiteSpec, X: pd.DataFrame,
+                ordinal: dict[int, np.ndarray]):
+    model = family_model(family, drivers, spec.levels, spec.horizons, spec.horizon_days)
+    return model.fit(X, ordinal)
+
+
+def out_of_season(family: str, drivers: list[str], spec: SiteSpec, X: pd.DataFrame,
+                  ordinal: dict[int, np.ndarray], season: np.ndarray) -> np.ndarray:
+    """Raw probabilities (days, levels, horizons) of a family for each block of seasons from a
+    model fitted on the other blocks (:func:`season_blocks`); NaN where a fold could not be
+    fitted."""
+    out = np.full((len(X), len(spec.levels), len(spec.horizons)), np.nan)
+    for block in season_blocks(season):
+        test = np.isin(season, block)
+        train = ~test
+        try:
+            model = _fit_family(family, drivers, spec, X[train],
+                                {h: y[train] for h, y in ordinal.items()})
+        except ValueError:  # a fold with one outcome only cannot be fitted
+            continue
+        out[test] = model.predict_raw(X[test])
+    return out
+
+
+def cross_fitted(raw: np.ndarray, o: np.ndarray, season: np.ndarray, method: str) -> np.ndarray:
+    """Out-of-season forecasts calibrated fold by fold with a map fitted on the other folds'
+    forecasts, then made coherent: honest forecasts of the calibrated family."""
+    out = np.full_like(raw, np.nan)
+    for block in season_blocks(season):
+        test = np.isin(season, block)
+        cal = Calibration.fit(raw[~test], o[~test], method)
+        out[test] = coherent(cal.apply(raw[test]))
+    return out
+
+
+def pooled_brier(p: np.ndarray, o: np.ndarray) -> float:
+    """Brier score over every labelled (day, level, horizon) both forecast and observed."""
+    keep = ~np.isnan(p) & ~np.isnan(o)
+    return brier_score(p[keep], o[keep]) if keep.any() else float("nan")
+
+
+def calibration_candidates(spec: SiteSpec, raw: np.ndarray, o: np.ndarray) -> list[str]:
+    """The calibrations compared for a site: the one pinned, or with 'auto' none, sigmoid and,
+    where every level with exceedances has enough out-of-season forecasts, isotonic."""
+    if spec.calibration != "auto":
+        return [spec.calibration]
+    keep = ~np.isnan(raw) & ~np.isnan(o)
+    per_level = [(int(keep[:, k].sum()), float(o[:, k][keep[:, k]].sum()))
+                 for k in range(o.shape[1])]
+    enough = all(n >= MIN_ISOTONIC_FORECASTS and e >= MIN_ISOTONIC_EVENTS
+                 for n, e in per_level if e > 0)
+    return ["none", "sigmoid"] + (["isotonic"] if enough else [])
+
+
+def choose_family(spec: SiteSpec, drivers: list[str], X: pd.DataFrame,
+                  ordinal: dict[int, np.ndarray], o: np.ndarray,
+                  keep_forecasts: bool = True) -> dict[str, Any]:
+    """Which family forecasts the site, with which calibration, and why: the pair with the
+    lower season-blocked Brier score of its calibrated out-of-season forecasts over every
+    level and horizon (calibration maps fitted on the other folds: :func:`cross_fitted`),
+    unless the configuration pins the family or the calibration.
+
+    With both pinned there is nothing to choose: the out-of-season forecasts are made only
+    when ``keep_forecasts`` asks for them (the model card's cross-validated skill), else the
+    choice is returned at once (a backtest's replay of ``train``).
     """
-    drivers = list(drivers)
-    left_out: list[dict[str, Any]] = []
-    while True:
-        risk = RiskModel(drivers, levels, horizon_days).fit(X, y)
-        coef = dict(zip(risk.feature_names_in_, risk.coef_, strict=True))
-        se = dict(zip(risk.feature_names_in_, risk.coef_se_, strict=True))
-        wrong = [d for d in drivers if (info := lookup(d)) is not None and info.effect != Effect.NONE
-                 and np.sign(coef[d]) == -int(info.effect)]
-        if not wrong or len(drivers) == 1:
-            risk.left_out_ = left_out
-            return risk
-        worst = max(wrong, key=lambda d: abs(coef[d]) / (se[d] if se[d] > 0 else 1.0))
-        effect = "raise" if lookup(worst).effect == Effect.RAISES else "lower"
-        left_out.append({"driver": worst, "per_sd": float(coef[worst]),
-                         "reason": f"its fitted effect ran against the direction the literature "
-                                   f"gives it (it should {effect} the risk); left out, not "
-                                   "reversed"})
-        drivers.remove(worst)
+    season = season_of(X["issue_date"], spec.season_start_month)
+    if not keep_forecasts and spec.family != "auto" and spec.calibration != "auto":
+        return {"family": spec.family, "calibration_method": spec.calibration,
+                "reason": f"pinned in the configuration (family \"{spec.family}\", "
+                          f"calibration \"{spec.calibration}\")",
+                "brier_by_family": {}, "brier": {}, "seasons_compared": 0,
+                "forecasts": None, "season": season}
+    labelled_seasons = np.unique(season[~np.isnan(o).all(axis=(1, 2))])
+    candidates = list(FAMILIES) if spec.family == "auto" else [spec.family]
+    scores: dict[str, dict[str, float]] = {}
+    forecasts = {}
+    if len(labelled_seasons) >= 2:
+        for family in candidates:
+            raw = out_of_season(family, drivers, spec, X, ordinal, season)
+            forecasts[family] = {"raw": raw}
+            scores[family] = {}
+            for method in calibration_candidates(spec, raw, o):
+                calibrated = cross_fitted(raw, o, season, method)
+                scores[family][method] = pooled_brier(calibrated, o)
+                forecasts[family][method] = calibrated
+    flat = {(f, m): v for f, by in scores.items() for m, v in by.items() if not np.isnan(v)}
+    if not flat:
+        chosen = (candidates[0], "none")
+        reason = ("fewer than two seasons with lab results: no season-blocked comparison is "
+                  "possible, so the " + ("transparent ordinal model" if chosen[0] == "ordinal"
+                                         else f"pinned {chosen[0]} model") + " is used "
+                  "uncalibrated")
+    else:
+        chosen = min(flat, key=flat.get)
+        others = sorted((k for k in flat if k != chosen), key=flat.get)
+        how = "pinned in the configuration" if spec.family != "auto" else "chosen by the record"
+        reason = (f"{how}: {chosen[0]} with calibration '{chosen[1]}' has the lower "
+                  f"season-blocked Brier score over every level and horizon ({flat[chosen]:.4f}"
+                  + "".join(f"; {f}/{m} {flat[(f, m)]:.4f}" for f, m in others) + ")")
+    oos = forecasts.get(chosen[0])
+    return {"family": chosen[0], "calibration_method": chosen[1], "reason": reason,
+            "brier_by_family": {f: min(by.values()) for f, by in scores.items() if by},
+            "brier": {f"{f}/{m}": v for (f, m), v in flat.items()},
+            "seasons_compared": int(len(labelled_seasons)) if scores else 0,
+            "forecasts": None if oos is None else {"raw": oos["raw"],
+                                                   "calibrated": oos[chosen[1]]},
+            "season": season}
 
 
-def fit_models(spec: SiteSpec, table: pd.DataFrame) -> tuple[RiskModel, CountModel, ClimatologyModel]:
-    """Fit the risk, count and climatology models of a site on a training table."""
+def fit_models(spec: SiteSpec, table: pd.DataFrame, keep_forecasts: bool = True) -> Fitted:
+    """Fit a site's models on a training table: the family chosen by the record (or pinned)
+    with its calibration, the ordinal model at the headline horizon, the count, climatology and
+    persistence models. ``keep_forecasts``: see :func:`choose_family`."""
     h = spec.horizon_days
     X = prepare(table)
-    y = ordinal_outcome(X, label_columns(spec))
+    ordinal, o = outcomes(X, spec)
+    y = ordinal[h]
     choice = available_drivers(spec.drivers, X)
     if not choice.used:
         raise ValueError("none of the site's drivers can be computed from what its station "
                          "records: " + "; ".join(choice.notes))
-    risk = fit_signed(list(choice.used), spec.levels, h, X, y)
+    drivers = list(choice.used)
+    chosen = choose_family(spec, drivers, X, ordinal, o, keep_forecasts)
+    model = _fit_family(chosen["family"], drivers, spec, X, ordinal)
+    risk = (model.models_[h] if isinstance(model, OrdinalOutlook) and h not in model.borrowed_
+            else fit_signed(drivers, spec.levels, h, X, y))
+    oos = chosen["forecasts"]
+    if oos is None and chosen["calibration_method"] != "none" and chosen["seasons_compared"] == 0 \
+            and spec.calibration != "auto":  # pinned: its map needs the out-of-season forecasts
+        season = chosen["season"]
+        oos = {"raw": out_of_season(chosen["family"], drivers, spec, X, ordinal, season)}
+    calibration = (Calibration.fit(oos["raw"], o, chosen["calibration_method"])
+                   if oos is not None else Calibration([{"method": "none"}] * len(spec.levels)))
+    chosen["calibration"] = calibration.methods()
+    outlook = Outlook(model, calibration)
     count = CountModel(list(risk.drivers)).fit(X, X[f"max_count_log10_{h}d"].to_numpy())
     clim = ClimatologyModel(spec.levels).fit(X["issue_date"], y)
-    return risk, count, clim
+    persistence = PersistenceModel(spec.levels, spec.horizons).fit(X["last_level"], o)
+    return Fitted(risk, count, clim, outlook, persistence, chosen)
 
 
 def dekad(dates: pd.Series | pd.Index) -> np.ndarray:
@@ -202,33 +345,63 @@ def driver_normals(X: pd.DataFrame, drivers: list[str]) -> dict[str, list[float 
     return out
 
 
-def cross_validate(spec: SiteSpec, table: pd.DataFrame) -> pd.DataFrame:
-    """Leave-one-season-out forecasts of the model and the climatology baseline.
+def cross_validated(spec: SiteSpec, table: pd.DataFrame, fitted: Fitted) -> pd.DataFrame:
+    """Season-blocked forecasts of the chosen family at the headline horizon, calibrated fold
+    by fold (:func:`cross_fitted`), beside the climatology of the other seasons.
 
-    Each season's issue days are forecast by models fitted on every other season (blocks of
-    whole seasons keep the strong day-to-day dependence out of the score).
     Returns one row per labelled issue day: season, outcome per level, model and climatology
-    probability per level.
+    probability per level (empty when fewer than two seasons have lab results).
     """
+    oos = fitted.choice["forecasts"]
+    if oos is None:
+        return pd.DataFrame()
     X = prepare(table)
+    _, o = outcomes(X, spec)
+    season = fitted.choice["season"]
+    j = spec.horizons.index(spec.horizon_days)
+    p = oos["calibrated"][:, :, j]
+    keep = ~np.isnan(o[:, 0, j]) & ~np.isnan(p[:, 0])
+    clim = np.full((len(X), len(spec.levels)), np.nan)
     y = ordinal_outcome(X, label_columns(spec))
-    season = season_of(X["issue_date"], spec.season_start_month)
-    parts = []
-    for s in np.unique(season[~np.isnan(y)]):
-        test = (season == s) & ~np.isnan(y)
-        try:
-            risk, _, clim = fit_models(spec, table[season != s])
-        except ValueError:  # a fold with one outcome only cannot be fitted
-            continue
-        p = risk.predict_proba(X[test])
-        c = clim.predict_proba(X.loc[test, "issue_date"])
-        part = pd.DataFrame({"season": s, "issue_date": X.loc[test, "issue_date"].to_numpy()})
-        for k, name in enumerate(spec.levels):
-            part[f"outcome_{k + 1}"] = (y[test] >= k + 1).astype(float)
-            part[f"model_{k + 1}"] = p[name].to_numpy()
-            part[f"climatology_{k + 1}"] = c[name].to_numpy()
-        parts.append(part)
-    return pd.concat(parts, ignore_index=True) if parts else pd.DataFrame()
+    for block in season_blocks(season):
+        test = np.isin(season, block)
+        c = ClimatologyModel(spec.levels).fit(X.loc[~test, "issue_date"], y[~test])
+        clim[test] = c.predict_proba(X.loc[test, "issue_date"]).to_numpy()
+    frame = pd.DataFrame({"season": season[keep], "issue_date": X.loc[keep, "issue_date"].to_numpy()})
+    for k in range(len(spec.levels)):
+        frame[f"outcome_{k + 1}"] = o[keep, k, j]
+        frame[f"model_{k + 1}"] = p[keep, k]
+        frame[f"climatology_{k + 1}"] = clim[keep, k]
+    return frame
+
+
+def cross_validate(spec: SiteSpec, table: pd.DataFrame) -> pd.DataFrame:
+    """Season-blocked forecasts of the model ``train`` would fit (see :func:`cross_validated`)."""
+    return cross_validated(spec, table, fit_models(spec, table))
+
+
+RELIABILITY_EDGES = (0.0, 0.2, 0.4, 0.6, 0.8, 1.0)
+"""Bins of the model card's reliability table (and the daily report's line)."""
+
+
+def reliability_by_level(cv: pd.DataFrame, names: list[str]) -> dict[str, list[dict[str, Any]]]:
+    """Per level, the season-blocked forecasts at the headline horizon in fifths of the
+    probability scale: how many, their mean and the share that reached the level."""
+    out: dict[str, list[dict[str, Any]]] = {}
+    if cv.empty:
+        return out
+    edges = np.asarray(RELIABILITY_EDGES)
+    for k, name in enumerate(names, start=1):
+        p, o = cv[f"model_{k}"].to_numpy(dtype=float), cv[f"outcome_{k}"].to_numpy(dtype=float)
+        keep = ~np.isnan(p) & ~np.isnan(o)
+        p, o = p[keep], o[keep]
+        which = np.clip(np.searchsorted(edges, p, side="right") - 1, 0, len(edges) - 2)
+        out[name] = [{"low": float(edges[b]), "high": float(edges[b + 1]),
+                      "n": int((which == b).sum()),
+                      "mean_forecast": float(p[which == b].mean()) if (which == b).any() else None,
+                      "observed": float(o[which == b].mean()) if (which == b).any() else None}
+                     for b in range(len(edges) - 1)]
+    return out
 
 
 def skill(frame: pd.DataFrame, names: list[str], prefix: str = "model") -> dict[str, dict[str, float]]:
@@ -243,21 +416,26 @@ def skill(frame: pd.DataFrame, names: list[str], prefix: str = "model") -> dict[
 
 
 def fit_site(spec: SiteSpec, table: pd.DataFrame, cross_validation: bool = True) -> SiteModels:
-    """Fit a site's models and assemble its model card."""
-    risk, count, clim = fit_models(spec, table)
+    """Fit a site's models and assemble its model card. Without ``cross_validation`` and with
+    the family and the calibration pinned, no season-blocked forecasts are made: the card then
+    has no cross-validated skill and no reliability table (the daily report says it has no
+    track record to show)."""
+    fitted = fit_models(spec, table, keep_forecasts=cross_validation)
+    risk, count, clim = fitted.risk, fitted.count, fitted.climatology
     names = spec.levels
     X = prepare(table)
     y = ordinal_outcome(X, label_columns(spec))
     labelled = ~np.isnan(y)
     in_sample = pd.DataFrame({f"outcome_{k}": (y[labelled] >= k).astype(float)
                               for k in range(1, len(names) + 1)})
-    p = risk.predict_proba(X[labelled])
+    p = fitted.outlook.at(X[labelled], spec.horizon_days)
     c = clim.predict_proba(X.loc[labelled, "issue_date"])
-    persistence = PersistenceModel(names).fit().predict_proba(X.loc[labelled, "last_level"])
+    persistence = fitted.persistence.predict_proba(X.loc[labelled, "last_level"], spec.horizon_days)
     for k, name in enumerate(names, start=1):
         in_sample[f"model_{k}"] = p[name].to_numpy()
         in_sample[f"climatology_{k}"] = c[name].to_numpy()
         in_sample[f"persistence_{k}"] = persistence[name].to_numpy()
+    choice = fitted.choice
     card: dict[str, Any] = {
         "site_id": spec.site_id, "site_name": spec.name, "scheme": spec.scheme.key,
         "levels": names, "horizon_days": spec.horizon_days,
@@ -267,21 +445,27 @@ def fit_site(spec: SiteSpec, table: pd.DataFrame, cross_validation: bool = True)
         "coefficients": risk.coefficients().reset_index(names="driver").to_dict(orient="records"),
         "drivers": list(risk.drivers), "fingerprint": fingerprint(table),
         "cyanorisk_version": __version__,
+        "family": {"chosen": choice["family"], "reason": choice["reason"],
+                   "brier_by_family": {f: float(v) for f, v in choice["brier_by_family"].items()},
+                   "seasons_compared": choice["seasons_compared"],
+                   "calibration": dict(zip(names, choice["calibration"], strict=True)),
+                   "horizons_days": spec.horizons},
         "skill_in_sample": {"model": skill(in_sample, names),
                             "climatology": skill(in_sample, names, "climatology"),
                             "persistence": skill(in_sample, names, "persistence")},
     }
+    cv = cross_validated(spec, table, fitted)
     if cross_validation:
-        cv = cross_validate(spec, table)
         card["skill_cross_validated"] = ({"model": skill(cv, names),
                                           "climatology": skill(cv, names, "climatology"),
                                           "seasons": int(cv["season"].nunique())}
                                          if len(cv) else None)
+    card["reliability_out_of_season"] = reliability_by_level(cv, names)
     card["left_out"] = list(risk.left_out_)
-    choice = available_drivers(spec.drivers, X)
+    drivers = available_drivers(spec.drivers, X)
     card["drivers_asked"] = list(spec.drivers)
-    card["substituted"] = dict(choice.substituted)
-    card["not_recorded"] = dict(choice.not_recorded)
-    card["driver_notes"] = choice.notes
+    card["substituted"] = dict(drivers.substituted)
+    card["not_recorded"] = dict(drivers.not_recorded)
+    card["driver_notes"] = drivers.notes
     return SiteModels(spec.site_id, risk, count, clim, card,
-                      driver_normals(X, list(risk.drivers)))
+                      driver_normals(X, list(risk.drivers)), fitted.outlook, fitted.persistence)
