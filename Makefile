@@ -36,6 +36,7 @@ bench: $(STAMP)
 	$(BIN)/python benchmarks/bench_backtest.py
 	$(BIN)/python benchmarks/bench_cli.py
 	$(BIN)/python benchmarks/bench_faults.py
+	$(BIN)/python benchmarks/bench_skill.py
 
 clean:
 	rm -rf $(VENV) build src/*.egg-info .pytest_cache .ruff_cache

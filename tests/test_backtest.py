@@ -155,12 +155,12 @@ def test_the_season_model_is_fitted_on_what_was_known_when_the_season_began(demo
     weather, totals = known_by(demo, local_midnight_utc(site, season, site.season_start_month))
     table = training_table(site, weather, totals)
     closed = pd.to_datetime(table["issue_date"]) + pd.Timedelta(
-        days=site.horizon_days + site.lab_delay_days) < start
-    risk, _, clim = fit_models(site, table[closed.to_numpy()])
+        days=site.outlook_days + site.lab_delay_days) < start
+    fitted = fit_models(site, table[closed.to_numpy()])
     X = prepare(demo.table)
     in_season = season_of(X["issue_date"], site.season_start_month) == season
-    p = risk.predict_proba(X[in_season])
-    c = clim.predict_proba(X.loc[in_season, "issue_date"])
+    p = fitted.outlook.at(X[in_season], site.horizon_days)
+    c = fitted.climatology.predict_proba(X.loc[in_season, "issue_date"])
     f = result.forecasts[result.forecasts["season"] == season]
     for name in site.levels:
         rows = f[f["level"] == name]
@@ -366,7 +366,8 @@ def test_backtest_command_writes_forecasts_scores_and_a_self_contained_page(demo
     assert "Tallowbark Reservoir (tallowbark): backtest of seasons 2019-2021" in out
     folder = tmp_path / "reports" / "tallowbark" / "backtest_2019-2021"
     assert sorted(p.name for p in folder.iterdir()) == [
-        "backtest.html", "forecasts.csv", "scores_by_season.csv", "scores_overall.csv"]
+        "backtest.html", "forecasts.csv", "reliability.csv", "scores_by_horizon.csv",
+        "scores_by_season.csv", "scores_overall.csv"]
 
     forecasts = pd.read_csv(folder / "forecasts.csv")
     documented = ["site_id", "issue_date", "level", "horizon_days", "probability", "outcome",
@@ -389,7 +390,16 @@ def test_backtest_command_writes_forecasts_scores_and_a_self_contained_page(demo
             "lead_time_days", "note"} <= set(by_season.columns)
     overall = pd.read_csv(folder / "scores_overall.csv")
     assert len(overall) == len(LEVELS) * 3 and (overall["seasons"] == 3).all()
-    assert {"brier_skill_low", "brier_skill_high", "roc_auc_low", "roc_auc_high"} <= set(overall.columns)
+    assert {"brier_skill_low", "brier_skill_high", "roc_auc_low", "roc_auc_high",
+            "median_lead_time_days", "median_lead_to_report_days"} <= set(overall.columns)
+    # every horizon of the outlook scored, per level and source
+    by_horizon = pd.read_csv(folder / "scores_by_horizon.csv")
+    assert len(by_horizon) == len(LEVELS) * 14 * 3
+    assert sorted(by_horizon["horizon_days"].unique()) == list(range(1, 15))
+    assert {f"probability_{h}d" for h in range(1, 15)} <= set(forecasts.columns)
+    reliability = pd.read_csv(folder / "reliability.csv")
+    assert set(reliability["level"]) == set(LEVELS)
+    assert reliability.groupby("level")["n"].sum().min() > 0
 
     page = (folder / "backtest.html").read_text(encoding="utf-8")
     check = PageCheck()
@@ -399,7 +409,8 @@ def test_backtest_command_writes_forecasts_scores_and_a_self_contained_page(demo
     assert page.lstrip().startswith("<!DOCTYPE html>")
     assert check.outside == []  # no external resources
     assert re.findall(r"url\(|@import", page) == []
-    assert {"summary", "overall", "warnings", "curves", "timeline", "notes"} <= check.ids
+    assert {"summary", "overall", "leads", "warnings", "horizons", "curves", "timeline",
+            "notes"} <= check.ids
     assert "ROC and reliability" in page and "Season timelines" in page
     # ROC and reliability: one figure per level; timelines: one per season
     assert len(check.images) == len(LEVELS) + 3

@@ -394,3 +394,42 @@ def test_write_scenario_is_deterministic_by_seed(tmp_path):
 def test_write_scenario_needs_a_season(tmp_path):
     with pytest.raises(ValueError, match="at least 1"):
         scenario.write_scenario(tmp_path, seasons=0)
+
+
+# --- the point of the tool: skill on a record the model was not built from ------------------
+
+def test_season_blocked_forecasts_beat_climatology_and_persistence(config):
+    # The scenario's blooms come from its process model, not from the forecasting model. Each
+    # block of seasons forecast by models fitted on the other blocks (train's own choice of
+    # family and calibration, calibrated fold by fold), at the headline horizon of 7 days: the
+    # Brier score must beat the climatology of the other blocks and persistence as a probability
+    # learnt from them (verification practice: Wilks, Statistical Methods in the Atmospheric
+    # Sciences, ch. 8, from memory).
+    from cyanorisk.model import PersistenceModel, prepare
+    from cyanorisk.pipeline import SitePipeline
+    from cyanorisk.training import cross_validated, fit_models, outcomes, season_blocks
+    from cyanorisk.verify import brier_score
+
+    pipeline = SitePipeline.of(config, config.sites[0])
+    spec, table = pipeline.spec, pipeline.training_table()
+    fitted = fit_models(spec, table)
+    cv = cross_validated(spec, table, fitted)
+    assert cv["season"].nunique() == 12
+    X = prepare(table)
+    _, o = outcomes(X, spec)
+    season = fitted.choice["season"]
+    persistence = np.full(len(X), np.nan)
+    k, j = spec.levels.index("Alert Level 1"), spec.horizons.index(7)
+    for block in season_blocks(season):
+        test = np.isin(season, block)
+        model = PersistenceModel(spec.levels, spec.horizons).fit(X.loc[~test, "last_level"], o[~test])
+        persistence[test] = model.predict(X.loc[test, "last_level"])[:, k, j]
+    by_day = pd.Series(persistence, index=X["issue_date"].to_numpy())
+    p, y = cv[f"model_{k + 1}"].to_numpy(), cv[f"outcome_{k + 1}"].to_numpy()
+    clim = cv[f"climatology_{k + 1}"].to_numpy()
+    pers = by_day.reindex(cv["issue_date"].to_numpy()).to_numpy()
+    keep = ~np.isnan(p) & ~np.isnan(clim) & ~np.isnan(pers)
+    assert keep.sum() > 2000 and y[keep].sum() > 300
+    model, climatology, persist = (brier_score(q[keep], y[keep]) for q in (p, clim, pers))
+    assert model < 0.6 * climatology  # Brier skill above 0.4 against climatology
+    assert model < 0.85 * persist  # and above 0.15 against persistence

@@ -30,7 +30,14 @@ from cyanorisk.model import ModelFileError
 from cyanorisk.pipeline import SitePipeline
 from cyanorisk.spec import DEFAULT_WARN_AT, Thresholds
 from cyanorisk.training import season_of
-from cyanorisk.tuning import THRESHOLDS, choose_by_cost, choose_by_hit_rate, sweep, tune_level
+from cyanorisk.tuning import (
+    THRESHOLDS,
+    choose_by_cost,
+    choose_by_hit_rate,
+    sweep,
+    tune_level,
+    warning_view,
+)
 from cyanorisk.verify import contingency
 
 # ---------------------------------------------------------------------------------------------
@@ -213,8 +220,8 @@ def result(demo):
 
 
 def best_hit_rate(result, level: str) -> float:
-    f = result.forecasts[(result.forecasts["level"] == level)
-                         & result.forecasts["probability"].notna()]
+    view = warning_view(result.forecasts)
+    f = view[(view["level"] == level) & view["probability"].notna()]
     return float(sweep(f, result.exceedances, lead_times=False)["hit_rate"].max())
 
 
@@ -336,7 +343,7 @@ def test_a_level_whose_target_cannot_be_met_keeps_its_earlier_threshold(demo, re
     assert main(["tune", "--config", str(config), "--accept"]) == 0
     warn_at = thresholds_for(config).warn_at
     assert warn_at[met] == pytest.approx(
-        choose_by_hit_rate(sweep(result.forecasts[result.forecasts["level"] == met]
+        choose_by_hit_rate(sweep(warning_view(result.forecasts).query("level == @met")
                                  .dropna(subset=["probability"]), result.exceedances,
                                  lead_times=False), target), abs=1e-9)  # tuned anew
     assert warn_at[unmet] == pytest.approx(0.2, abs=1e-9)  # left as it was

@@ -20,17 +20,19 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from cyanorisk.align import known_from
 from cyanorisk.errors import BacktestError
 from cyanorisk.levels import meets
-from cyanorisk.model import PersistenceModel, ordinal_outcome, prepare
+from cyanorisk.model import ClimatologyModel, PersistenceModel, ordinal_outcome, prepare
 from cyanorisk.spec import SiteSpec, Thresholds
-from cyanorisk.training import fit_models, label_columns, season_of
+from cyanorisk.training import fit_models, label_columns, outcomes, season_of
 from cyanorisk.verify import (
     brier_score,
     brier_skill_score,
     contingency,
     event_counts,
     lead_time_days,
+    reliability_table,
     roc_auc,
 )
 
@@ -62,6 +64,14 @@ class BacktestResult:
     notes: list[str]
     not_replayed: dict[int, str] = field(default_factory=dict)
     """Seasons asked for that could not be replayed -> why (no forecast was issued in them)."""
+    horizon_scores: pd.DataFrame = field(default_factory=pd.DataFrame)
+    """Per level, horizon and source, pooled over the replayed seasons: n, events, brier,
+    brier_skill (vs climatology), brier_skill_persistence, roc_auc."""
+    reliability: pd.DataFrame = field(default_factory=pd.DataFrame)
+    """Per level and probability bin of the headline horizon: forecasts, mean forecast,
+    observed frequency (:func:`cyanorisk.verify.reliability_table`)."""
+    families: dict[int, str] = field(default_factory=dict)
+    """Season -> the model family ``train`` would have chosen at its start."""
 
     @property
     def replayed(self) -> list[int]:
@@ -91,47 +101,69 @@ def parse_seasons(text: str | None, available: Sequence[int]) -> list[int]:
 def walk_forward(spec: SiteSpec, table: pd.DataFrame, totals: pd.DataFrame, seasons: Iterable[int],
                  thresholds: Thresholds,
                  progress: Callable[[Iterable, int, str], Iterable] | None = None) -> BacktestResult:
-    """Run the walk-forward backtest of one site over ``seasons`` (season start years)."""
+    """Run the walk-forward backtest of one site over ``seasons`` (season start years).
+
+    At each season start the models are fitted exactly as ``train`` would fit them on what was
+    known then, the choice of family and its calibration included (:func:`fit_models`)."""
     seasons = list(seasons)
     names = spec.levels
-    h = spec.horizon_days
-    delay = spec.lab_delay_days
+    h, horizons = spec.horizon_days, spec.horizons
+    j_head, j_warn = horizons.index(h), horizons.index(spec.warn_horizon_days)
     X = prepare(table)
-    y = ordinal_outcome(X, label_columns(spec))
+    ordinal, o = outcomes(X, spec)
+    y = ordinal[h]
     issue_day = pd.to_datetime(X["issue_date"])
     season = season_of(X["issue_date"], spec.season_start_month)
-    parts, notes = [], []
+    parts, notes, families = [], [], {}
     not_replayed: dict[int, str] = {}
     loop = progress(seasons, len(seasons), "backtest") if progress else seasons
     for s in loop:
         start = pd.Timestamp(year=int(s), month=spec.season_start_month, day=1)
         in_season = season == s
-        known_before = (issue_day + pd.Timedelta(days=h + delay)) < start
+        known_before = ((issue_day + pd.Timedelta(days=spec.outlook_days + spec.lab_delay_days))
+                        < start).to_numpy()
         part = pd.DataFrame({"site_id": spec.site_id, "season": s,
                              "issue_date": X.loc[in_season, "issue_date"].to_numpy()})
-        history = int((known_before.to_numpy() & ~np.isnan(y)).sum())
-        risk = clim = None
+        history = int((known_before & ~np.isnan(y)).sum())
+        fitted = None
         why = history_shortfall(history)
         if why is None:
             try:
-                risk, _, clim = fit_models(spec, table[known_before.to_numpy()])
+                fitted = fit_models(spec, table[known_before], keep_forecasts=False)
             except (ValueError, RuntimeError) as exc:
                 why = f"the model could not be fitted on the data known before it ({exc})"
+        n = int(in_season.sum())
+        p = np.full((n, len(names), len(horizons)), np.nan)
+        c = np.full((n, len(names), len(horizons)), np.nan)
         if why is not None:
+            # no history to learn persistence from: the plain rule (the last level stays)
+            per = PersistenceModel(names, horizons).fit().predict(X.loc[in_season, "last_level"])
             not_replayed[int(s)] = why
             notes.append(f"season {s}: not replayed, {why}")
-        p = risk.predict_proba(X[in_season]) if risk is not None else None
-        c = clim.predict_proba(X.loc[in_season, "issue_date"]) if clim is not None else None
-        per = PersistenceModel(names).predict_proba(X.loc[in_season, "last_level"])
-        for k, name in enumerate(names, start=1):
+        else:
+            families[int(s)] = fitted.choice["family"]
+            p = fitted.outlook.predict(X[in_season])
+            per = fitted.persistence.predict(X.loc[in_season, "last_level"])
+            c = climatology_by_horizon(spec, X[known_before], ordinal, known_before,
+                                       X.loc[in_season, "issue_date"])
+        for k, name in enumerate(names):
             block = part.copy()
             block["level"] = name
             block["horizon_days"] = h
-            block["probability"] = p[name].to_numpy() if p is not None else np.nan
-            block["outcome"] = np.where(np.isnan(y[in_season]), np.nan, y[in_season] >= k)
-            block["climatology"] = c[name].to_numpy() if c is not None else np.nan
-            block["persistence"] = per[name].to_numpy()
-            block["warned"] = warned_flags(block["probability"], thresholds.at(name))
+            block["probability"] = p[:, k, j_head]
+            block["outcome"] = o[in_season, k, j_head]
+            block["climatology"] = c[:, k, j_head]
+            block["persistence"] = per[:, k, j_head]
+            block["warn_horizon_days"] = spec.warn_horizon_days
+            block["warn_probability"] = p[:, k, j_warn]
+            block["warn_outcome"] = o[in_season, k, j_warn]
+            block["warned"] = warned_flags(block["warn_probability"], thresholds.at(name))
+            block["family"] = families.get(int(s), "")
+            for j, g in enumerate(horizons):
+                block[f"probability_{g}d"] = p[:, k, j]
+                block[f"outcome_{g}d"] = o[in_season, k, j]
+                block[f"climatology_{g}d"] = c[:, k, j]
+                block[f"persistence_{g}d"] = per[:, k, j]
             parts.append(block)
     forecasts = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame()
     exceedances = first_exceedances(totals, spec, seasons)
@@ -139,7 +171,25 @@ def walk_forward(spec: SiteSpec, table: pd.DataFrame, totals: pd.DataFrame, seas
     replayed = forecasts[~forecasts["season"].isin(list(not_replayed))] if len(forecasts) \
         else forecasts
     overall = overall_scores(replayed, names)
-    return BacktestResult(forecasts, scores, overall, exceedances, notes, not_replayed)
+    if len(overall) and len(scores):
+        overall = overall.merge(median_leads(scores), on=["level", "source"], how="left")
+    result = BacktestResult(forecasts, scores, overall, exceedances, notes, not_replayed)
+    result.horizon_scores = horizon_scores(replayed, names, horizons)
+    result.reliability = reliability(replayed, names)
+    result.families = families
+    return result
+
+
+def climatology_by_horizon(spec: SiteSpec, history: pd.DataFrame,
+                           ordinal: dict[int, np.ndarray], rows: np.ndarray,
+                           dates: pd.Series) -> np.ndarray:
+    """Climatology (days, levels, horizons) of the issue ``dates``, fitted per horizon on the
+    ``rows`` of the table known before the season."""
+    out = np.empty((len(dates), len(spec.levels), len(spec.horizons)))
+    for j, g in enumerate(spec.horizons):
+        clim = ClimatologyModel(spec.levels).fit(history["issue_date"], ordinal[g][rows])
+        out[:, :, j] = clim.predict_proba(dates).to_numpy()
+    return out
 
 
 def labelled_before(spec: SiteSpec, table: pd.DataFrame, seasons: Iterable[int]) -> dict[int, int]:
@@ -148,7 +198,7 @@ def labelled_before(spec: SiteSpec, table: pd.DataFrame, seasons: Iterable[int])
     X = prepare(table)
     y = ordinal_outcome(X, label_columns(spec))
     issue_day = pd.to_datetime(X["issue_date"])
-    ends = issue_day + pd.Timedelta(days=spec.horizon_days + spec.lab_delay_days)
+    ends = issue_day + pd.Timedelta(days=spec.outlook_days + spec.lab_delay_days)
     out = {}
     for s in seasons:
         start = pd.Timestamp(year=int(s), month=spec.season_start_month, day=1)
@@ -174,24 +224,31 @@ def warned_flags(probability: pd.Series, warn_at: float | None) -> pd.Series:
 
 
 def first_exceedances(totals: pd.DataFrame, spec: SiteSpec, seasons: Sequence[int]) -> pd.DataFrame:
-    """The first sample of each season that met each level (local date), NaT if none."""
+    """The first sample of each season that met each level (local date) and the local date its
+    result became known (``first_reported``: the lab's reported date, else the sampling date
+    plus the lab delay), NaT if none."""
     rows = []
     if len(totals):
         local = totals["sampled_at"].dt.tz_convert(spec.timezone).dt.tz_localize(None)
+        known = known_from(totals, spec.lab_delay_days, spec.timezone)
+        known_local = known.dt.tz_convert(spec.timezone).dt.tz_localize(None)
         season = season_of(local, spec.season_start_month)
     for s in seasons:
         for lvl in spec.scheme.levels:
-            first = pd.NaT
+            first, reported = pd.NaT, pd.NaT
             if len(totals):
                 hit = (season == s) & (meets(totals, lvl) == 1.0)
                 if hit.any():
-                    first = local[hit].min().normalize()
-            rows.append({"season": s, "level": lvl.name, "first_exceedance": first})
+                    i = local[hit].idxmin()
+                    first = local[i].normalize()
+                    reported = known_local[i].normalize()
+            rows.append({"season": s, "level": lvl.name, "first_exceedance": first,
+                         "first_reported": reported})
     return pd.DataFrame(rows)
 
 
 def _scores(block: pd.DataFrame, source: str, warn_at: float | None,
-            exceed: pd.Timestamp | None) -> dict:
+            exceed: pd.Timestamp | None, reported: pd.Timestamp | None = None) -> dict:
     p = block[COLUMN[source]].to_numpy(dtype=float)
     o = block["outcome"].to_numpy(dtype=float)
     labelled = ~np.isnan(o) & ~np.isnan(p)
@@ -210,14 +267,24 @@ def _scores(block: pd.DataFrame, source: str, warn_at: float | None,
     clim = block["climatology"].to_numpy(dtype=float)
     out["brier_skill"] = brier_skill_score(p, o, clim) if n else float("nan")
     if source != "climatology" and warn_at is not None:
-        out.update(contingency(p, o, warn_at))
-        warned = (p >= warn_at) & ~np.isnan(p)
-        counted = event_counts(block["issue_date"].to_numpy(), warned, o)
+        # warnings are judged by the horizon that raises them (warn_horizon_days)
+        wp = (block["warn_probability"] if source == "model" and "warn_probability" in block
+              else block[COLUMN[source]]).to_numpy(dtype=float)
+        wo = (block["warn_outcome"] if "warn_outcome" in block and source == "model"
+              else block["outcome"]).to_numpy(dtype=float)
+        horizon = int(block["warn_horizon_days"].iloc[0]) if source == "model" and \
+            "warn_horizon_days" in block else int(block["horizon_days"].iloc[0])
+        out.update(contingency(wp, wo, warn_at))
+        warned = (wp >= warn_at) & ~np.isnan(wp)
+        counted = event_counts(block["issue_date"].to_numpy(), warned, wo)
         out.update({k: v for k, v in counted.items() if k != "events"})
         out["exceedance_events"] = counted["events"]
         exceed_dates = [] if exceed is None or pd.isna(exceed) else [exceed]
-        out["lead_time_days"] = lead_time_days(block["issue_date"].to_numpy(), warned, exceed_dates,
-                                               int(block["horizon_days"].iloc[0]))
+        lead = lead_time_days(block["issue_date"].to_numpy(), warned, exceed_dates, horizon)
+        out["lead_time_days"] = lead
+        delay = ((reported - exceed) / pd.Timedelta(days=1)
+                 if exceed_dates and reported is not None and not pd.isna(reported) else np.nan)
+        out["lead_to_report_days"] = lead + delay
         if not exceed_dates:
             notes.append("no sample met the level this season: no lead time")
         elif np.isnan(p).all():
@@ -240,11 +307,12 @@ def season_scores(forecasts: pd.DataFrame, exceedances: pd.DataFrame, names: lis
     for (s, level), block in forecasts.groupby(["season", "level"], sort=True):
         ex = exceedances[(exceedances["season"] == s) & (exceedances["level"] == level)]
         first = ex["first_exceedance"].iloc[0] if len(ex) else None
+        reported = ex["first_reported"].iloc[0] if len(ex) and "first_reported" in ex else None
         threshold = (thresholds or Thresholds({})).at(level)
         why = not_replayed.get(int(s))
         for source in SOURCES:
             row = {"season": s, "level": level, "source": source, "replayed": why is None,
-                   **_scores(block, source, threshold, first)}
+                   **_scores(block, source, threshold, first, reported)}
             if why is not None:
                 row["note"] = f"not replayed: {why}"
             rows.append(row)
@@ -293,3 +361,63 @@ def overall_scores(forecasts: pd.DataFrame, names: list[str], n_boot: int = 200,
                              f["outcome"].to_numpy(dtype=float),
                              f["persistence"].to_numpy(dtype=float))})
     return pd.DataFrame(rows)
+
+
+def median_leads(scores: pd.DataFrame) -> pd.DataFrame:
+    """Per level and source, the median over replayed seasons of the lead before the first
+    lab-confirmed sample (``median_lead_time_days``) and before its result was reported
+    (``median_lead_to_report_days``), and the seasons with a lead (``seasons_with_lead``)."""
+    s = scores[scores["replayed"]] if "replayed" in scores else scores
+    if "lead_time_days" not in s:
+        return pd.DataFrame(columns=["level", "source"])
+    rows = []
+    for (level, source), g in s.groupby(["level", "source"], sort=False):
+        lead = g["lead_time_days"].to_numpy(dtype=float)
+        report = g["lead_to_report_days"].to_numpy(dtype=float)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            rows.append({"level": level, "source": source,
+                         "median_lead_time_days": float(np.nanmedian(lead)),
+                         "median_lead_to_report_days": float(np.nanmedian(report)),
+                         "seasons_with_lead": int((~np.isnan(lead)).sum())})
+    return pd.DataFrame(rows)
+
+
+def horizon_scores(forecasts: pd.DataFrame, names: list[str], horizons: Sequence[int]) -> pd.DataFrame:
+    """Scores of every horizon, per level and source, pooled over the seasons given."""
+    rows = []
+    if forecasts.empty:
+        return pd.DataFrame()
+    for level in names:
+        f = forecasts[forecasts["level"] == level]
+        for g in horizons:
+            o = f[f"outcome_{g}d"].to_numpy(dtype=float)
+            c = f[f"climatology_{g}d"].to_numpy(dtype=float)
+            r = f[f"persistence_{g}d"].to_numpy(dtype=float)
+            for source, column in (("model", "probability"), ("climatology", "climatology"),
+                                   ("persistence", "persistence")):
+                p = f[f"{column}_{g}d"].to_numpy(dtype=float)
+                keep = ~np.isnan(p) & ~np.isnan(o) & ~np.isnan(c) & ~np.isnan(r)
+                rows.append({"level": level, "horizon_days": g, "source": source,
+                             "n": int(keep.sum()), "events": int(o[keep].sum()),
+                             "brier": brier_score(p[keep], o[keep]),
+                             "brier_skill": brier_skill_score(p[keep], o[keep], c[keep]),
+                             "brier_skill_persistence": brier_skill_score(p[keep], o[keep],
+                                                                          r[keep]),
+                             "roc_auc": roc_auc(p[keep], o[keep])})
+    return pd.DataFrame(rows)
+
+
+def reliability(forecasts: pd.DataFrame, names: list[str], bins: int = 10) -> pd.DataFrame:
+    """Per level, the reliability table of the headline horizon's forecasts: for each
+    probability bin, the forecasts in it, their mean and how often the level was reached."""
+    parts = []
+    if forecasts.empty:
+        return pd.DataFrame()
+    for level in names:
+        f = forecasts[forecasts["level"] == level]
+        table = reliability_table(f["probability"].to_numpy(dtype=float),
+                                  f["outcome"].to_numpy(dtype=float), bins)
+        table.insert(0, "level", level)
+        parts.append(table)
+    return pd.concat(parts, ignore_index=True)

@@ -163,13 +163,24 @@ class Choice:
         return self.miss_cost * self.table["misses"] + self.table["false_alarms"]
 
 
+def warning_view(forecasts: pd.DataFrame) -> pd.DataFrame:
+    """The backtest rows as warnings see them: the probability, outcome and horizon of the
+    horizon that raises warnings (``warn_*`` columns) in place of the headline horizon's."""
+    if "warn_probability" not in forecasts:
+        return forecasts
+    return forecasts.assign(probability=forecasts["warn_probability"],
+                            outcome=forecasts["warn_outcome"],
+                            horizon_days=forecasts["warn_horizon_days"])
+
+
 def tune_level(forecasts: pd.DataFrame, exceedances: pd.DataFrame, level: str, *,
                miss_cost: float | None = None, target_hit_rate: float | None = None,
                n_boot: int = 200, seed: int = 1) -> Choice:
     """Tune one level's threshold by cost or by target hit rate, with its bootstrap spread."""
     if (miss_cost is None) == (target_hit_rate is None):
         raise ValueError("give either a miss cost or a target hit rate")
-    f = forecasts[(forecasts["level"] == level) & forecasts["probability"].notna()]
+    f = warning_view(forecasts)
+    f = f[(f["level"] == level) & f["probability"].notna()]
     ex = exceedances[exceedances["level"] == level]
 
     def pick(table: pd.DataFrame) -> float:

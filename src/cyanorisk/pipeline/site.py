@@ -243,13 +243,18 @@ class SitePipeline:
         result = run.result
         page = render_backtest(spec.name, result, _season_counts(spec, run.totals), spec.levels,
                                cells, run.span)
+        by_horizon = [f"{kind}_{h}d" for h in spec.horizons for kind in ("probability", "outcome")]
         forecasts = result.forecasts[["site_id", "season", "issue_date", "level", "horizon_days",
                                       "probability", "outcome", "climatology", "persistence",
-                                      "warned"]]
+                                      "warned", "warn_horizon_days", "warn_probability",
+                                      "warn_outcome", "family", *by_horizon]]
         return write_group({
             folder / "forecasts.csv": lambda tmp: forecasts.to_csv(tmp, index=False),
             folder / "scores_by_season.csv": lambda tmp: result.scores.to_csv(tmp, index=False),
             folder / "scores_overall.csv": lambda tmp: result.overall.to_csv(tmp, index=False),
+            folder / "scores_by_horizon.csv":
+                lambda tmp: result.horizon_scores.to_csv(tmp, index=False),
+            folder / "reliability.csv": lambda tmp: result.reliability.to_csv(tmp, index=False),
             folder / "backtest.html": lambda tmp: tmp.write_text(page, encoding="utf-8"),
         })
 

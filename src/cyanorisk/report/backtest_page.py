@@ -168,15 +168,82 @@ def _warnings_table(result, names: list[str]) -> str:
             f"<td>{html.escape(r['level'])}</td>"
             f"<td>{'' if pd.isna(first) else date(first)}</td>"
             f"<td class='num'>{_int(r['lead_time_days'])}</td>"
+            f"<td class='num'>{_int(r.get('lead_to_report_days', np.nan))}</td>"
             f"<td class='num'>{_int(r['hits'])}</td><td class='num'>{_int(r['misses'])}</td>"
             f"<td class='num'>{_int(r['false_alarms'])}</td>"
             f"<td class='num'>{_int(r['event_hits'])} / {_int(r['exceedance_events'])}</td>"
             f"<td class='num'>{_int(r['false_alarm_spells'])}</td></tr>")
     return ("<table class='small'><tr><th>Season</th><th>Level</th><th>First reached</th>"
-            "<th class='num'>Days warned ahead</th><th class='num'>Hits (days)</th>"
+            "<th class='num'>Days warned before that sample</th>"
+            "<th class='num'>Days warned before its result</th><th class='num'>Hits (days)</th>"
             "<th class='num'>Misses (days)</th><th class='num'>False alarms (days)</th>"
             "<th class='num'>Events warned</th><th class='num'>False-alarm spells</th></tr>"
             + "".join(rows) + "</table>")
+
+
+def _warn_days(result) -> str:
+    f = result.forecasts
+    return str(int(f["warn_horizon_days"].iloc[0])) if len(f) and "warn_horizon_days" in f else "?"
+
+
+def _families_text(result) -> str:
+    families = getattr(result, "families", {}) or {}
+    return ", ".join(f"{s}-{str(s + 1)[-2:]} {f}" for s, f in sorted(families.items())) or "none"
+
+
+def _leads_table(result, names: list[str]) -> str:
+    """Median leads per level (model), over the replayed seasons with a lead."""
+    o = result.overall
+    if "median_lead_time_days" not in o:
+        return ""
+    rows = []
+    for name in names:
+        m = o[(o["level"] == name) & (o["source"] == "model")].iloc[0]
+        rows.append(f"<tr><td>{html.escape(name)}</td>"
+                    f"<td class='num'>{_int(m['median_lead_time_days'])}</td>"
+                    f"<td class='num'>{_int(m['median_lead_to_report_days'])}</td>"
+                    f"<td class='num'>{_int(m['seasons_with_lead'])}</td></tr>")
+    return ("<table><tr><th>Level</th><th class='num'>Median days warned before the first "
+            "confirming sample</th><th class='num'>... before its result was reported</th>"
+            "<th class='num'>Seasons</th></tr>" + "".join(rows) + "</table>")
+
+
+def _reliability_tables(result, names: list[str]) -> str:
+    """Per level: forecasts and outcomes per probability bin (headline horizon)."""
+    r = result.reliability
+    if r is None or r.empty:
+        return ""
+    parts = []
+    for name in names:
+        t = r[(r["level"] == name) & (r["n"] > 0)]
+        rows = "".join(
+            f"<tr><td>{b['bin_low']:.0%}-{b['bin_high']:.0%}</td><td class='num'>{int(b['n']):,}</td>"
+            f"<td class='num'>{b['mean_forecast']:.0%}</td>"
+            f"<td class='num'>{b['observed_frequency']:.0%}</td></tr>" for _, b in t.iterrows())
+        parts.append(f"<h3>{html.escape(name)}</h3><table class='small'><tr><th>Forecast</th>"
+                     "<th class='num'>Days</th><th class='num'>Mean forecast</th>"
+                     "<th class='num'>Share that reached the level</th></tr>" + rows + "</table>")
+    return "".join(parts)
+
+
+def _horizon_table(result, names: list[str]) -> str:
+    """Brier skill of every horizon against climatology and persistence, per level."""
+    h = result.horizon_scores
+    if h is None or h.empty:
+        return ""
+    m = h[h["source"] == "model"]
+    days = sorted(m["horizon_days"].unique())
+    head = "".join(f"<th class='num'>{d}</th>" for d in days)
+    rows = []
+    for name in names:
+        g = m[m["level"] == name].set_index("horizon_days")
+        for label, col in (("AUC", "roc_auc"), ("skill vs usual", "brier_skill"),
+                           ("skill vs last result", "brier_skill_persistence")):
+            rows.append(f"<tr><td>{html.escape(name)}</td><td>{label}</td>"
+                        + "".join(f"<td class='num'>{_score(g.loc[d, col])}</td>" for d in days)
+                        + "</tr>")
+    return ("<div class='wide'><table class='small'><tr><th>Level</th><th>Score</th>"
+            f"{head}</tr>" + "".join(rows) + "</table></div>")
 
 
 def render_backtest(site_name: str, result, counts: pd.DataFrame, names: list[str],
@@ -218,9 +285,21 @@ the level in the horizon; a false-alarm spell is a run of warning days with none
 <p class="small">ROC AUC: 1 ranks every exceedance day above every quiet day, 0.5 is chance.
 Brier skill: 1 is perfect, 0 no better than the reference, below 0 worse. Ranges resample whole
 seasons.</p></section>
-<section id="warnings"><h2>Warnings per season</h2>{_warnings_table(result, names)}</section>
+<section id="leads"><h2>How early</h2>{_leads_table(result, names)}
+<p class="small">Counted from the start of the warning spell that covered the first sample of
+the season to meet the level (a warning raised by any horizon up to
+{_warn_days(result)} days), to that sample's date and to the date its result was known.</p>
+</section>
+<section id="warnings"><h2>Warnings per season</h2>{_warnings_table(result, names)}
+<p class="small">Model family chosen at each season start, as <code>train</code> would have
+chosen it: {e(_families_text(result))}.</p></section>
+<section id="horizons"><h2>Skill by days ahead</h2>{_horizon_table(result, names)}
+<p class="small">Columns: the horizon in days. Skill: Brier skill score against the usual for the
+time of year and against persistence as a probability (how often the last result's level held
+over the horizon in the seasons before).</p></section>
 <section id="curves"><h2>ROC and reliability</h2>
-{''.join(f'<img alt="ROC and reliability" src="{f}">' for f in figs)}</section>
+{''.join(f'<img alt="ROC and reliability" src="{f}">' for f in figs)}
+{_reliability_tables(result, names)}</section>
 <section id="timeline"><h2>Season timelines</h2>
 {''.join(f'<img alt="season timeline" src="{t}">' for t in timelines)}</section>
 <section id="notes"><h2>Notes</h2><ul>{notes}</ul></section>
