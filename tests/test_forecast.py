@@ -205,11 +205,23 @@ def test_report_writes_html_json_and_text_under_reports_site(written, demo_site)
                                                for ext in ("html", "json", "txt")]
     assert report_document(assessment)["as_of"] == str(day.date())
     assert report_document(assessment)["status"] == STATUS_ASSESSED
-    # the level is the highest whose probability reaches its warning threshold
+    # the level is the highest whose probability within some horizon up to the warning horizon
+    # reaches its warning threshold; the probabilities are those of the headline horizon
     f = report_document(assessment)["forecast"]
-    reached = [k for k, n in enumerate(report_document(assessment)["scheme"]["levels"], start=1)
-               if f["probabilities"][n] >= f["warn_at"][n]]
+    names = report_document(assessment)["scheme"]["levels"]
+    w = f["warn_horizon_days"]
+    assert w == 14 and f["horizon_days"] == 7
+    reached = [k for k, n in enumerate(names, start=1)
+               if max(f["outlook"]["by_level"][n][:w]) >= f["warn_at"][n]]
     assert f["level_rank"] == max(reached, default=0)
+    for n in names:
+        assert f["probabilities"][n] == f["outlook"]["by_level"][n][6]
+        within = f["warned_within"][n]
+        if within is None:
+            assert max(f["outlook"]["by_level"][n][:w]) < f["warn_at"][n]
+        else:
+            assert f["outlook"]["by_level"][n][within - 1] >= f["warn_at"][n]
+            assert all(p < f["warn_at"][n] for p in f["outlook"]["by_level"][n][:within - 1])
     # the level stated is the higher of the lab's level in force and the outlook's
     c = report_document(assessment)
     assert c["level_rank"] == max(c["in_force"]["level_rank"], f["level_rank"])
@@ -368,7 +380,7 @@ def test_weather_up_to_the_issue_time_is_fresh(demo_site):
 def test_drivers_of_a_day_with_no_weather_in_its_windows_are_reported_missing(demo_site):
     day = report_day(demo_site) + pd.Timedelta(days=10)
     a = assess_demo(demo_site, day)
-    drivers = list(demo_site.models.risk.drivers)
+    drivers = demo_site.models.drivers
     from_weather = [d for d in drivers if d not in WEATHER_FREE_DRIVERS]
     # every weather driver's window (7 or 30 days) has at most 20 of its days with data,
     # below min_good_share (0.8) of the demo configuration

@@ -219,10 +219,12 @@ def test_changed_thresholds_issue_revision_2(tmp_path, demo_site, count_ingests)
     assert r2.inputs["thresholds"] == sha256_of(tuned)
     # the day's probability did not change, the level it raises did
     assert r2.probabilities == r1.probabilities
-    assert 0.5 <= r2.probabilities[ALERT1] < 0.9
     assert (r1.level, r2.level, o2.level) == (ALERT1, LOW, LOW)
     doc = json.loads(Path(report_path(o2.paths, "json")).read_text(encoding="utf-8"))
     assert doc["forecast"]["level"] == LOW
+    # the probability that raises warnings: within the warning horizon (14 days)
+    f = doc["forecast"]
+    assert 0.5 <= f["outlook"]["by_level"][ALERT1][f["warn_horizon_days"] - 1] < 0.9
 
 
 def test_a_changed_authority_in_the_configuration_issues_revision_2(tmp_path, demo_site,

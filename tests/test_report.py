@@ -58,10 +58,11 @@ def assess_day(demo_site, day, *, totals=None, thresholds=None, spec=None, windo
 
 @pytest.fixture(scope="module")
 def scan(demo_site):
-    """Every day of the demo's last two seasons (2023-07-01 to the record's end), assessed
-    with one day of history each."""
+    """Every day of the demo's last season and the second half of the one before (2024-01-01
+    to the record's end: a bloom's decline, a winter and a new bloom), assessed with one day of
+    history each."""
     spec = dataclasses.replace(demo_site.spec, history_days=1)
-    days = pd.date_range("2023-07-01", "2025-01-14", freq="D")
+    days = pd.date_range("2024-01-01", "2025-01-14", freq="D")
     assert set(season_of(days, spec.season_start_month)) == {2023, 2024}
     record = lab_record(demo_site.totals, spec.scheme, spec.lab_delay_days, spec.timezone)
     return [assess_day(demo_site, d, spec=spec, window_days=10, totals=record) for d in days]

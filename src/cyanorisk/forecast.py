@@ -38,7 +38,7 @@ from cyanorisk.levels import (
     main_action,
     toxin_values,
 )
-from cyanorisk.model import PersistenceModel, SiteModels, prepare
+from cyanorisk.model import SiteModels, prepare
 from cyanorisk.spec import SiteSpec, Thresholds
 from cyanorisk.words import cells, date, number, percent, time_of_year
 
@@ -86,7 +86,23 @@ class Forecast:
     climatology: dict[str, float] | None = None
     """The base rate for the time of year, per level."""
     persistence: dict[str, float | None] | None = None
-    """1 for the levels the last observed sample met, 0 above; None without a sample."""
+    """Persistence as a probability: how often, in the training seasons, a day whose last
+    result stood where today's does reached each level within the horizon; None without a
+    sample."""
+    outlook: dict[str, list[float]] | None = None
+    """Per level, the probability of reaching it within 1, 2 ... ``outlook_days`` days
+    (coherent: never higher for a higher level, never lower for a longer horizon)."""
+    outlook_days: int = 0
+    """Longest horizon of the outlook [d]."""
+    warn_horizon_days: int = 0
+    """Longest horizon [d] whose probability can raise a warning."""
+    warned_within: dict[str, int | None] = field(default_factory=dict)
+    """Per level, the shortest horizon [d] whose probability reaches the level's threshold
+    (None: no horizon up to ``warn_horizon_days`` does)."""
+    family: str | None = None
+    """The model family that gave the probabilities ('ordinal' or 'boosted')."""
+    reliability: dict[str, Any] | None = None
+    """How past out-of-season forecasts like today's came out (see :func:`reliability_line`)."""
     peak_band: dict[str, Any] | None = None
     """The most likely band of the largest count within the horizon, from the probabilities:
     level, low and high [cells mL-1 of the scheme's measure], probability."""
@@ -269,6 +285,42 @@ def last_weather_stamp(weather: pd.DataFrame, before: pd.Timestamp) -> pd.Timest
     if not has.any():
         return None
     return weather.index[np.flatnonzero(has)[-1]] + step
+
+
+def warned_within(outlook: dict[str, list[float]], thresholds: Thresholds,
+                  warn_horizon_days: int) -> dict[str, int | None]:
+    """Per level, the shortest horizon [d] up to ``warn_horizon_days`` whose probability
+    reaches the level's threshold, or None."""
+    out = {}
+    for name, by_horizon in outlook.items():
+        hits = [h for h, p in enumerate(by_horizon[:warn_horizon_days], start=1)
+                if p >= thresholds.at(name)]
+        out[name] = hits[0] if hits else None
+    return out
+
+
+def reliability_line(card: dict[str, Any], probabilities: dict[str, float],
+                     names: list[str]) -> dict[str, Any] | None:
+    """How past out-of-season forecasts in today's bin came out, for the level the outlook is
+    most about: the highest level with a probability of at least 10% (else the first level).
+
+    Read from the model card's ``reliability_out_of_season`` (season-blocked forecasts of the
+    chosen family, calibrated on the other folds); None when the card has none or the bin held
+    no past forecast.
+    """
+    table = card.get("reliability_out_of_season") or {}
+    level = next((n for n in reversed(names) if probabilities.get(n, 0.0) >= 0.1), names[0])
+    rows = table.get(level)
+    if not rows:
+        return None
+    p = probabilities[level]
+    row = next((r for r in rows if r["low"] <= p < r["high"] or (p == 1.0 and r["high"] == 1.0)),
+               None)
+    if row is None or not row["n"]:
+        return None
+    return {"level": level, "low": row["low"], "high": row["high"], "n": row["n"],
+            "observed": row["observed"], "probability": p,
+            "horizon_days": card.get("horizon_days")}
 
 
 def forecast_rank(probs: dict[str, float], thresholds: Thresholds, names: list[str]) -> int:
@@ -516,14 +568,20 @@ def _headline(spec: SiteSpec, status: str, reasons: list[str], lab: InForce,
                 f"{h} days (lab: {lab_text})")
     name = f.level
     threshold = f.thresholds.at(name) if f.thresholds else 0.5
+    within = f.warned_within.get(name) or h
+    p_within = f.outlook[name][within - 1] if f.outlook else p[name]
     if f.watch:
-        text = (f"{name} watch: {percent(p[name])} chance of reaching {name} within {h} days, "
-                f"above this site's warning threshold of {percent(threshold)}")
+        text = (f"{name} watch: {percent(p_within)} chance of reaching {name} within {within} "
+                f"days, above this site's warning threshold of {percent(threshold)}")
     else:
-        text = f"Forecast {name}: {percent(p[name])} chance of reaching {name} within {h} days"
+        text = (f"Forecast {name}: {percent(p_within)} chance of reaching {name} within "
+                f"{within} days")
+    if within != h:
+        text += f" ({percent(p[name])} within {h})"
     if f.level_rank < len(names):
         nxt = names[f.level_rank]
-        text += f"; {percent(p[nxt])} for {nxt}"
+        p_next = f.outlook[nxt][within - 1] if f.outlook else p[nxt]
+        text += f"; {percent(p_next)} for {nxt}"
     return text + f" (lab: {lab_text})"
 
 
@@ -550,10 +608,11 @@ def assess(spec: SiteSpec, models: SiteModels, weather: pd.DataFrame, totals: pd
     table.insert(0, "site_id", spec.site_id)
     site_totals = lab_record(totals[totals["site_id"] == spec.site_id], scheme,
                              spec.lab_delay_days, tz)
-    table = pd.concat([table, last_known(table, site_totals, scheme, spec.lab_delay_days, tz)],
+    table = pd.concat([table, last_known(table, site_totals, scheme, spec.lab_delay_days, tz,
+                                          spec.season_start_month)],
                       axis=1)
     X = prepare(table)
-    for name in models.risk.drivers:  # a sensor the station no longer has: no value, not a crash
+    for name in models.drivers:  # a sensor the station no longer has: no value, not a crash
         if name not in X:
             X[name] = np.nan
     today = X.iloc[[-1]]
@@ -565,20 +624,29 @@ def assess(spec: SiteSpec, models: SiteModels, weather: pd.DataFrame, totals: pd
     wx_age_days = None if last_wx is None else (issue - last_wx) / pd.Timedelta(days=1)
     sample_known = pd.notna(last["last_sampled_at"])
     sample_age = float(last["last_count_age_days"]) if sample_known else None
-    missing_drivers = [d for d in models.risk.drivers if pd.isna(last.get(d, np.nan))]
-    reasons = _staleness(spec, wx_age_days, sample_age, missing_drivers, len(models.risk.drivers))
+    missing_drivers = [d for d in models.drivers if pd.isna(last.get(d, np.nan))]
+    reasons = _staleness(spec, wx_age_days, sample_age, missing_drivers, len(models.drivers))
     status = STATUS_INSUFFICIENT if reasons else STATUS_ASSESSED
     forecast = Forecast(horizon_days=spec.horizon_days, thresholds=thresholds,
                         missing_drivers=missing_drivers)
     probs = None
     if status == STATUS_ASSESSED:
-        probs = models.risk.predict_proba(X)
+        table_p = models.outlook.predict(X)
+        j = models.outlook.horizons.index(spec.horizon_days)
+        probs = pd.DataFrame(table_p[:, :, j], columns=names, index=X.index)
         p_today = {n: float(probs[n].iloc[-1]) for n in names}
-        rank = forecast_rank(p_today, thresholds, names)
+        outlook = {n: [float(v) for v in table_p[-1, k, :]] for k, n in enumerate(names)}
+        forecast.outlook, forecast.outlook_days = outlook, len(models.outlook.horizons)
+        forecast.warn_horizon_days = min(spec.warn_horizon_days, forecast.outlook_days)
+        forecast.warned_within = warned_within(outlook, thresholds, forecast.warn_horizon_days)
+        forecast.family = models.outlook.family
+        p_warn = {n: outlook[n][forecast.warn_horizon_days - 1] for n in names}
+        rank = forecast_rank(p_warn, thresholds, names)
         expected = models.count.predict(today).iloc[0]
         clim = models.climatology.predict_proba(today["issue_date"]).iloc[0]
-        persist = PersistenceModel(names).predict_proba(today["last_level"]).iloc[0]
+        persist = models.persistence.predict_proba(today["last_level"], spec.horizon_days).iloc[0]
         forecast.probabilities = p_today
+        forecast.reliability = reliability_line(models.card, p_today, names)
         forecast.level_rank, forecast.level = rank, level_name(scheme, rank)
         forecast.watch = rank > 0 and thresholds.at(names[rank - 1]) < 0.5
         forecast.climatology = {n: float(clim[n]) for n in names}

@@ -86,7 +86,69 @@ def _outlook_line(c: dict[str, Any]) -> str:
         return ("Not given today: the data are insufficient (see the headline). No figure of the "
                 "model is shown.")
     parts = [f"{n} {percent(p)}" for n, p in f["probabilities"].items()]
-    return f"Chance within {f['horizon_days']} days: " + ", ".join(parts)
+    text = f"Chance within {f['horizon_days']} days: " + ", ".join(parts)
+    raised = _raised_by_longer(f)
+    return text + (f"; {raised}" if raised else "")
+
+
+def _raised_by_longer(f: dict[str, Any]) -> str:
+    """Words for a warning raised by a horizon longer than the headline one, or ''."""
+    level = f["level"]
+    within = (f.get("warned_within") or {}).get(level) if level else None
+    if not within or within <= f["horizon_days"]:
+        return ""
+    p = f["outlook"]["by_level"][level][within - 1]
+    return f"{level} warned by the {within}-day outlook ({percent(p)} within {within} days)"
+
+
+STRIP_DAYS = (1, 2, 3, 5, 7, 10, 14)
+"""Horizons [d] the text summary lists (the page shows every one)."""
+
+
+def _outlook_days_text(f: dict[str, Any]) -> str:
+    """The outlook by days ahead in one line per level, for the text summary."""
+    days = [d for d in STRIP_DAYS if d <= len(f["outlook"]["days"])]
+    return "; ".join(f"{n}: " + ", ".join(f"{d}d {percent(v[d - 1])}" for d in days)
+                     for n, v in f["outlook"]["by_level"].items())
+
+
+def _reliability_text(f: dict[str, Any]) -> str:
+    """One line: how past out-of-season forecasts like today's came out."""
+    r = f.get("reliability")
+    if not r:
+        return ("No record yet of how past forecasts like today's came out (too few seasons "
+                "with lab results).")
+    return (f"Of past days given {r['low']:.0%}-{r['high']:.0%} for {r['level']} within "
+            f"{r['horizon_days']} days (forecast without their own season), {percent(r['observed'])}"
+            f" reached it ({r['n']:,} days).")
+
+
+def _strip_cell(p: float, warned: bool, headline: bool) -> str:
+    """One cell of the outlook strip: the chance as text on a shade as deep as the chance."""
+    ink = "#fff" if p >= 0.55 else "#1b2a35"
+    style = f"background:rgba(40,86,120,{0.08 + 0.92 * p:.2f});color:{ink}"
+    cls = " class='warned'" if warned else (" class='head'" if headline else "")
+    return f"<td{cls} style='{style}'>{round(100 * p):d}</td>"
+
+
+def _outlook_strip(f: dict[str, Any]) -> str:
+    """The outlook as a small days-ahead by level table (percent chance of reaching the level
+    within that many days), the headline horizon marked, the cells that raise a warning
+    outlined."""
+    days = f["outlook"]["days"]
+    head = "".join(f"<th{' class=head' if d == f['horizon_days'] else ''}>{d}</th>"
+                   for d in days)
+    rows = []
+    for name, values in f["outlook"]["by_level"].items():
+        threshold = f["warn_at"][name]
+        cells_html = "".join(_strip_cell(p, d <= f["warn_horizon_days"] and p >= threshold,
+                                         d == f["horizon_days"])
+                             for d, p in zip(days, values, strict=True))
+        rows.append(f"<tr><th class='lvl'>{e(name)}</th>{cells_html}</tr>")
+    return (f"<div class='wide'><table class='outlook-strip'><caption>Chance (%) of reaching each "
+            f"level within 1 to {len(days)} days ahead; outlined: at or above the level's warning "
+            f"threshold within {f['warn_horizon_days']} days</caption><tr><th>Days ahead</th>"
+            f"{head}</tr>{''.join(rows)}</table></div>")
 
 
 def _toxin_lines(c: dict[str, Any]) -> list[str]:
@@ -143,10 +205,11 @@ def _outlook_section(c: dict[str, Any]) -> str:
     if f["probabilities"] is None:
         return (f'<section id="outlook"><h2>Outlook</h2><p class="note">{e(_outlook_line(c))}</p>'
                 '</section>')
+    within = f.get("warned_within") or {}
     rows = "".join(
         f"<tr><td>{e(n)}</td><td class='num'>{percent(p)}</td>"
         f"<td class='num'>{percent(f['warn_at'][n])}</td>"
-        f"<td>{'yes' if p >= f['warn_at'][n] else 'no'}</td>"
+        f"<td>{'no' if not within.get(n) else 'yes, within ' + str(within[n]) + ' days'}</td>"
         f"<td class='num'>{percent(f['climatology'][n])}</td><td class='num'>"
         + ("n/a" if f["persistence"][n] is None else percent(f["persistence"][n]))
         + "</td></tr>" for n, p in f["probabilities"].items())
@@ -162,13 +225,20 @@ def _outlook_section(c: dict[str, Any]) -> str:
     note = f"<p class='note'>{e(f['count_note'])}</p>" if f["count_note"] else ""
     watch = ("<p class='note'>The level was raised by this site's tuned warning threshold, below "
              "50%: read it as a watch.</p>" if f["watch"] else "")
+    family = {"ordinal": "the transparent ordinal model",
+              "boosted": "gradient boosting with the drivers' directions imposed"}.get(
+        f.get("family") or "", "the model")
     return f"""<section id="outlook"><h2>Outlook: chance of reaching each level within
 {f['horizon_days']} days</h2><div class="wide"><table>
-<tr><th>Level</th><th class="num">Chance</th><th class="num">Warn at</th><th>Warning</th>
-<th class="num">Usual for the time of year</th><th class="num">If the last result held</th></tr>
+<tr><th>Level</th><th class="num">Chance</th><th class="num">Warn at</th>
+<th>Warning (within {f['warn_horizon_days']} days)</th>
+<th class="num">Usual for the time of year</th><th class="num">After results like the last</th></tr>
 {rows}</table></div>{watch}
+<h3>By days ahead</h3>{_outlook_strip(f)}
+<p class="reliability">{e(_reliability_text(f))}</p>
 <p>{e(band_text)}</p><p class="small">{e(count)}</p>{note}
-<p class="small">Warning thresholds: {e(f['thresholds_source'])}.</p></section>"""
+<p class="small">Probabilities from {e(family)}, chosen for this site by its record of past
+seasons (see the model card). Warning thresholds: {e(f['thresholds_source'])}.</p></section>"""
 
 
 def _guideline(g: dict[str, Any]) -> str:
@@ -309,6 +379,9 @@ def render_text(a: Assessment) -> str:
              f"Level stated: {c['level'] or 'not known'} ({_basis_text(c)}).",
              f"Lab: {_last_result(c)}",
              f"Outlook: {_outlook_line(c)}"]
+    if c["forecast"].get("outlook"):
+        lines += [f"By days ahead: {_outlook_days_text(c['forecast'])}",
+                  f"Track record: {_reliability_text(c['forecast'])}"]
     lines += [f"Toxins: {t}" for t in _toxin_lines(c)]
     if c["sampling"] is not None:
         lines.append(f"Next sample: {_sampling_line(c)}")

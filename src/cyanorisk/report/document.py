@@ -91,6 +91,13 @@ def report_document(a: Assessment) -> dict[str, Any]:
                                          if f.interval_80_cells_per_ml else None),
             "count_note": f.count_note,
             "drivers": list(f.drivers), "missing_drivers": list(f.missing_drivers),
+            "outlook": None if f.outlook is None else {
+                "days": list(range(1, f.outlook_days + 1)),
+                "by_level": {n: list(v) for n, v in f.outlook.items()}},
+            "warn_horizon_days": f.warn_horizon_days,
+            "warned_within": dict(f.warned_within),
+            "family": f.family,
+            "reliability": f.reliability,
         },
         "observed": {
             "last_sampled_at": local_text(o.last_sampled_at, tz),

@@ -38,6 +38,23 @@ def model_card_text(card: dict[str, Any], path: str) -> str:
             lines.append(f"    {label}, {level}: model {_fmt(m['roc_auc'])} / {_fmt(m['brier'])}; "
                          f"climatology {_fmt(c['roc_auc'])} / {_fmt(c['brier'])}{extra} "
                          f"({m['events']:,} events in {m['n']:,})")
+    family = card.get("family")
+    if family:
+        lines.append(f"  model family: {family['chosen']} ({family['reason']})")
+        lines.append("  calibration on out-of-season forecasts: " + ", ".join(
+            f"{level} {method}" for level, method in family["calibration"].items()))
+        days = family.get("horizons_days") or []
+        if days:
+            lines.append(f"  outlook horizons: {days[0]} to {days[-1]} days")
+    reliability = card.get("reliability_out_of_season") or {}
+    if reliability:
+        lines.append(f"  reliability of season-blocked forecasts at {card['horizon_days']} days "
+                     "(forecast share: days, share that reached the level):")
+        for level, rows in reliability.items():
+            cells = [f"{r['low']:.0%}-{r['high']:.0%}: {r['n']:,}, "
+                     + ("n/a" if r["observed"] is None else f"{r['observed']:.0%}")
+                     for r in rows]
+            lines.append(f"    {level}: " + "; ".join(cells))
     for note in card.get("driver_notes", []):
         lines.append(f"  {note}")
     lines.append(f"  saved {path}")

@@ -69,6 +69,18 @@ h3 { font-size: 1em; margin: 0.8em 0 0.3em; break-after: avoid; }
 .facts { display: grid; grid-template-columns: 10em 1fr; gap: 0.25em 0.8em; margin: 0.4em 0; }
 .facts dt { font-weight: 600; color: #333; } .facts dd { margin: 0; }
 table { border-collapse: collapse; margin: 0.4em 0; width: 100%; }
+table.outlook-strip { width: auto; font-size: 0.85em; }
+table.outlook-strip caption { caption-side: bottom; text-align: left; font-size: 0.85em;
+  color: #555; padding-top: 0.3em; }
+table.outlook-strip td { text-align: center; min-width: 2em; padding: 0.25em 0.2em;
+  border: 1px solid #fff; }
+table.outlook-strip th { text-align: center; font-weight: normal; padding: 0.2em; }
+table.outlook-strip th.lvl { text-align: left; white-space: nowrap; padding-right: 0.6em; }
+table.outlook-strip th.head { font-weight: bold; text-decoration: underline; }
+table.outlook-strip td.head { box-shadow: inset 0 -3px 0 #1b2a35; }
+table.outlook-strip td.warned { outline: 3px solid #b3261e; outline-offset: -3px;
+  font-weight: bold; }
+p.reliability { font-style: italic; }
 td, th { padding: 0.25em 0.6em; border-bottom: 1px solid #ddd; text-align: left;
          vertical-align: top; } th { background: #f1f1f1; }
 td.num, th.num { text-align: right; font-variant-numeric: tabular-nums; }
