@@ -288,6 +288,8 @@ def demo_report(demo_site):
 def test_the_report_shows_the_outlook_by_days_ahead(demo_report):
     import re
 
+    from cyanorisk.words import percent
+
     _, doc, page, text = demo_report
     f = doc["forecast"]
     assert f["outlook"]["days"] == list(range(1, 15))
@@ -295,8 +297,10 @@ def test_the_report_shows_the_outlook_by_days_ahead(demo_report):
     rows = re.findall(r"<tr><th class='lvl'>(.*?)</th>(.*?)</tr>", strip, re.S)
     assert [name for name, _ in rows] == doc["scheme"]["levels"]
     for name, cells_html in rows:
-        values = [int(v) for v in re.findall(r">(\d+)</td>", cells_html)]
-        assert values == [round(100 * p) for p in f["outlook"]["by_level"][name]]
+        values = re.findall(r">([^<]*)</td>", cells_html)
+        # the same words as the table above it: whole percent, '<1' and '>99' at the ends
+        assert values == [percent(p).rstrip("%").replace("<", "&lt;").replace(">", "&gt;")
+                          for p in f["outlook"]["by_level"][name]]
         outlined = [i + 1 for i, c in enumerate(re.findall(r"<td([^>]*)>", cells_html))
                     if "warned" in c]
         within = f["warned_within"][name]

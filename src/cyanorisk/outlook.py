@@ -120,9 +120,10 @@ def fit_signed(drivers: list[str], levels: list[str], horizon_days: int, X: pd.D
 class OrdinalOutlook:
     """One signed proportional-odds model per horizon.
 
-    A horizon whose issue days cannot be fitted (too few labelled days, or one outcome only)
-    borrows the model of the next longer horizon that could: a longer horizon's probability is
-    never lower, so the borrowed one errs towards caution (``borrowed_``).
+    A horizon whose issue days cannot be fitted (too few labelled days, one outcome only, or a
+    fit that does not converge) borrows the model of the next longer horizon that could: a
+    longer horizon's probability is never lower, so the borrowed one errs towards caution
+    (``borrowed_``).
     """
 
     family = "ordinal"
@@ -152,7 +153,7 @@ class OrdinalOutlook:
         for h in sorted(self.fitting_horizons(), reverse=True):
             try:
                 fitted[h] = fit_signed(drivers, self.levels, h, X, outcomes[h])
-            except ValueError as exc:
+            except (ValueError, RuntimeError) as exc:  # one outcome, or no convergence
                 problems[h] = str(exc)
                 continue
             if drivers is self.drivers:

@@ -200,7 +200,7 @@ def out_of_season(family: str, drivers: list[str], spec: SiteSpec, X: pd.DataFra
         try:
             model = _fit_family(family, drivers, spec, X[train],
                                 {h: y[train] for h, y in ordinal.items()})
-        except ValueError:  # a fold with one outcome only cannot be fitted
+        except (ValueError, RuntimeError):  # a fold with one outcome only cannot be fitted
             continue
         out[test] = model.predict_raw(X[test])
     return out

@@ -151,7 +151,8 @@ def _overall_table(result, names: list[str]) -> str:
     return ("<table><tr><th>Level</th><th class='num'>ROC AUC, model (90% range)</th>"
             "<th class='num'>ROC AUC, usual for the time of year</th>"
             "<th class='num'>Brier skill against the usual (90% range)</th>"
-            "<th class='num'>Brier skill against 'the last result holds'</th></tr>"
+            "<th class='num'>Brier skill against persistence (how often results like the "
+            "last led to the level)</th></tr>"
             + "".join(rows) + "</table>")
 
 

@@ -91,6 +91,10 @@ def _outlook_line(c: dict[str, Any]) -> str:
     return text + (f"; {raised}" if raised else "")
 
 
+def _days(n: int) -> str:
+    return f"{n} day" if n == 1 else f"{n} days"
+
+
 def _raised_by_longer(f: dict[str, Any]) -> str:
     """Words for a warning raised by a horizon longer than the headline one, or ''."""
     level = f["level"]
@@ -128,7 +132,7 @@ def _strip_cell(p: float, warned: bool, headline: bool) -> str:
     ink = "#fff" if p >= 0.55 else "#1b2a35"
     style = f"background:rgba(40,86,120,{0.08 + 0.92 * p:.2f});color:{ink}"
     cls = " class='warned'" if warned else (" class='head'" if headline else "")
-    return f"<td{cls} style='{style}'>{round(100 * p):d}</td>"
+    return f"<td{cls} style='{style}'>{e(percent(p).rstrip('%'))}</td>"
 
 
 def _outlook_strip(f: dict[str, Any]) -> str:
@@ -209,7 +213,7 @@ def _outlook_section(c: dict[str, Any]) -> str:
     rows = "".join(
         f"<tr><td>{e(n)}</td><td class='num'>{percent(p)}</td>"
         f"<td class='num'>{percent(f['warn_at'][n])}</td>"
-        f"<td>{'no' if not within.get(n) else 'yes, within ' + str(within[n]) + ' days'}</td>"
+        f"<td>{'no' if not within.get(n) else 'yes, within ' + _days(within[n])}</td>"
         f"<td class='num'>{percent(f['climatology'][n])}</td><td class='num'>"
         + ("n/a" if f["persistence"][n] is None else percent(f["persistence"][n]))
         + "</td></tr>" for n, p in f["probabilities"].items())
