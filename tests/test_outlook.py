@@ -13,7 +13,7 @@ from hypothesis import strategies as st
 from hypothesis.extra.numpy import arrays
 
 from cyanorisk.errors import ModelFileError
-from cyanorisk.model import PersistenceModel, SiteModels, bundle_text, read_bundle
+from cyanorisk.model import PersistenceModel, SiteModels, bundle_text, expit, read_bundle
 from cyanorisk.outlook import (
     BoostedOutlook,
     Calibration,
@@ -319,3 +319,14 @@ def test_the_report_says_how_past_forecasts_like_todays_came_out(demo_report):
     line = (f"Of past days given {round(100 * r['low'])}%-{round(100 * r['high'])}% for "
             f"{r['level']} within 7 days")
     assert line in page and line in text
+
+
+def test_boosted_predicts_each_class_of_horizons_once_with_the_same_numbers(boosted):
+    # predicting once per class of horizons that every tree treats alike gives what predicting
+    # every horizon gives (the trees only ask horizon <= threshold)
+    X, _, model = boosted
+    Z = model._stacked(X.iloc[:300], model.horizons)
+    for k, (trees, base) in enumerate(zip(model.trees_, model.baseline_, strict=True)):
+        every = expit(base + forest_raw(trees, Z))
+        np.testing.assert_array_equal(model.predict_raw(X.iloc[:300])[:, k, :],
+                                      every.reshape(len(model.horizons), 300).T)

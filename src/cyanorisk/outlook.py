@@ -321,15 +321,28 @@ class BoostedOutlook:
             self.baseline_.append(float(np.ravel(clf._baseline_prediction)[0]))
         return self
 
+    def _horizon_classes(self) -> tuple[list[int], np.ndarray]:
+        """Horizons that every tree treats alike: those on the same side of every split on the
+        horizon (a tree only asks ``horizon <= threshold``). Returns one horizon per class and,
+        for each horizon of the outlook, the index of its class: predicting once per class gives
+        exactly the same numbers as predicting every horizon."""
+        column = len(self.drivers)
+        cuts = np.unique(np.concatenate([t["threshold"][(t["feature"] == column) & (t["leaf"] == 0)]
+                                         for trees in self.trees_ for t in trees] or [np.empty(0)]))
+        side = np.searchsorted(cuts, np.asarray(self.horizons, float), side="left")
+        keys, first, which = np.unique(side, return_index=True, return_inverse=True)
+        return [self.horizons[i] for i in first], which
+
     def predict_raw(self, X: pd.DataFrame) -> np.ndarray:
-        n, H = len(X), len(self.horizons)
-        Z = self._stacked(X, self.horizons)
-        out = np.zeros((n, len(self.levels), H))
+        n = len(X)
+        classes, which = self._horizon_classes()
+        Z = self._stacked(X, classes)
+        out = np.zeros((n, len(self.levels), len(self.horizons)))
         for k, (trees, base) in enumerate(zip(self.trees_, self.baseline_, strict=True)):
             if base is None:
                 continue
-            raw = base + forest_raw(trees, Z)
-            out[:, k, :] = expit(raw).reshape(H, n).T
+            raw = expit(base + forest_raw(trees, Z)).reshape(len(classes), n).T
+            out[:, k, :] = raw[:, which]
         return out
 
     def to_dict(self) -> dict[str, Any]:
