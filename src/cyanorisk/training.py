@@ -265,9 +265,15 @@ def choose_family(spec: SiteSpec, drivers: list[str], X: pd.DataFrame,
             forecasts[family] = {"raw": raw}
             scores[family] = {}
             for method in calibration_candidates(spec, raw, o):
-                calibrated = cross_fitted(raw, o, season, method)
-                scores[family][method] = pooled_brier(calibrated, o)
-                forecasts[family][method] = calibrated
+                forecasts[family][method] = cross_fitted(raw, o, season, method)
+        # every pair is scored on the same days: those every family could forecast
+        common = np.ones(o.shape, dtype=bool)
+        for family in forecasts:
+            common &= ~np.isnan(forecasts[family]["raw"])
+        for family in forecasts:
+            for method in scores[family] | {m: 0 for m in forecasts[family] if m != "raw"}:
+                scores[family][method] = pooled_brier(
+                    np.where(common, forecasts[family][method], np.nan), o)
     flat = {(f, m): v for f, by in scores.items() for m, v in by.items() if not np.isnan(v)}
     if not flat:
         chosen = (candidates[0], "none")
