@@ -26,8 +26,19 @@ from cyanorisk.backtest import walk_forward
 from cyanorisk.config import embedded_demo_text, load_config
 from cyanorisk.demo import write_demo
 from cyanorisk.pipeline import SitePipeline
-from cyanorisk.spec import Thresholds
+from cyanorisk.spec import SiteSpec, Thresholds
 from cyanorisk.training import season_of
+
+
+def site_record(config_path: Path) -> tuple[SiteSpec, pd.DataFrame, pd.DataFrame, list[int]]:
+    """The first site of a configuration, ingested: its specification, per-sample totals,
+    training table and the seasons the table holds, in order."""
+    config = load_config(config_path)
+    pipeline = SitePipeline.of(config, config.sites[0])
+    spec = pipeline.spec
+    table = pipeline.training_table()
+    seasons = sorted(set(season_of(table["issue_date"], spec.season_start_month).tolist()))
+    return spec, pipeline.clean().totals, table, seasons
 
 
 def main() -> None:
@@ -40,12 +51,7 @@ def main() -> None:
         config_path.write_text(re.sub(r'(?m)^root = "\.\."', 'root = "."', embedded_demo_text()),
                                encoding="utf-8")
         files = write_demo(root / "demo_data", 20, 20261202)
-        config = load_config(config_path)
-        pipeline = SitePipeline.of(config, config.sites[0])
-        spec = pipeline.spec
-        totals = pipeline.clean().totals
-        table = pipeline.training_table()
-        seasons = sorted(set(season_of(table["issue_date"], spec.season_start_month).tolist()))
+        spec, totals, table, seasons = site_record(config_path)
         seasons = seasons[1:][-20:]
         thresholds = Thresholds.default(spec.levels)
         parse_s = best_of(lambda: [pd.read_csv(p, sep="\t", skiprows=1) for p in files.weather],

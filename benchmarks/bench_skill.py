@@ -32,11 +32,12 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+from bench_backtest import site_record
 from cyanorisk.backtest import walk_forward
-from cyanorisk.config import embedded_demo_text, load_config
+from cyanorisk.config import embedded_demo_text
 from cyanorisk.demo import write_demo
 from cyanorisk.model import prepare
-from cyanorisk.pipeline import SitePipeline
 from cyanorisk.scenario import write_scenario
 from cyanorisk.spec import Thresholds
 from cyanorisk.training import outcomes, season_of
@@ -85,12 +86,7 @@ def figures(p: np.ndarray, o: np.ndarray, clim: np.ndarray, pers: np.ndarray) ->
 
 
 def score(config_path: Path) -> dict[str, float]:
-    config = load_config(config_path)
-    pipeline = SitePipeline.of(config, config.sites[0])
-    spec = pipeline.spec
-    totals = pipeline.clean().totals
-    table = pipeline.training_table()
-    available = sorted(set(season_of(table["issue_date"], spec.season_start_month).tolist()))
+    spec, totals, table, available = site_record(config_path)
     seasons = available[len(available) // 2:]
     started = time.perf_counter()
     result = walk_forward(spec, table, totals, seasons, Thresholds.default(spec.levels))

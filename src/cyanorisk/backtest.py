@@ -214,6 +214,16 @@ def history_shortfall(labelled_days_before: int) -> str | None:
             f"{MIN_HISTORY_DAYS}, about a season's worth, are needed)")
 
 
+def warning_view(forecasts: pd.DataFrame) -> pd.DataFrame:
+    """The backtest rows as warnings see them: the probability, outcome and horizon of the
+    horizon that raises warnings (``warn_*`` columns) in place of the headline horizon's."""
+    if "warn_probability" not in forecasts:
+        return forecasts
+    return forecasts.assign(probability=forecasts["warn_probability"],
+                            outcome=forecasts["warn_outcome"],
+                            horizon_days=forecasts["warn_horizon_days"])
+
+
 def warned_flags(probability: pd.Series, warn_at: float | None) -> pd.Series:
     """Whether the probability reached the warning threshold; blank (NA) where no forecast
     was issued, so that 'not warned' is never claimed for a day without a forecast."""
@@ -267,13 +277,11 @@ def _scores(block: pd.DataFrame, source: str, warn_at: float | None,
     clim = block["climatology"].to_numpy(dtype=float)
     out["brier_skill"] = brier_skill_score(p, o, clim) if n else float("nan")
     if source != "climatology" and warn_at is not None:
-        # warnings are judged by the horizon that raises them (warn_horizon_days)
-        wp = (block["warn_probability"] if source == "model" and "warn_probability" in block
-              else block[COLUMN[source]]).to_numpy(dtype=float)
-        wo = (block["warn_outcome"] if "warn_outcome" in block and source == "model"
-              else block["outcome"]).to_numpy(dtype=float)
-        horizon = int(block["warn_horizon_days"].iloc[0]) if source == "model" and \
-            "warn_horizon_days" in block else int(block["horizon_days"].iloc[0])
+        # the model's warnings are judged by the horizon that raises them
+        view = warning_view(block) if source == "model" else block
+        wp = view[COLUMN[source]].to_numpy(dtype=float)
+        wo = view["outcome"].to_numpy(dtype=float)
+        horizon = int(view["horizon_days"].iloc[0])
         out.update(contingency(wp, wo, warn_at))
         warned = (wp >= warn_at) & ~np.isnan(wp)
         counted = event_counts(block["issue_date"].to_numpy(), warned, wo)

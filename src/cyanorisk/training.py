@@ -45,10 +45,7 @@ from cyanorisk.outlook import (
 )
 from cyanorisk.spec import SiteSpec
 from cyanorisk.variables import WEATHER_VARIABLES
-from cyanorisk.verify import brier_score, roc_auc
-
-__all__ = ["Fitted", "available_drivers", "choose_family", "cross_validate", "fit_models",
-           "fit_signed", "fit_site", "outcomes", "season_of", "training_table"]
+from cyanorisk.verify import brier_score, reliability_table, roc_auc
 from cyanorisk.version import __version__
 
 
@@ -262,18 +259,14 @@ def choose_family(spec: SiteSpec, drivers: list[str], X: pd.DataFrame,
     if len(labelled_seasons) >= 2:
         for family in candidates:
             raw = out_of_season(family, drivers, spec, X, ordinal, season)
-            forecasts[family] = {"raw": raw}
-            scores[family] = {}
-            for method in calibration_candidates(spec, raw, o):
-                forecasts[family][method] = cross_fitted(raw, o, season, method)
+            forecasts[family] = {"raw": raw} | {
+                method: cross_fitted(raw, o, season, method)
+                for method in calibration_candidates(spec, raw, o)}
         # every pair is scored on the same days: those every family could forecast
-        common = np.ones(o.shape, dtype=bool)
-        for family in forecasts:
-            common &= ~np.isnan(forecasts[family]["raw"])
-        for family in forecasts:
-            for method in scores[family] | {m: 0 for m in forecasts[family] if m != "raw"}:
-                scores[family][method] = pooled_brier(
-                    np.where(common, forecasts[family][method], np.nan), o)
+        common = np.logical_and.reduce([~np.isnan(f["raw"]) for f in forecasts.values()])
+        scores = {family: {method: pooled_brier(np.where(common, p, np.nan), o)
+                           for method, p in by.items() if method != "raw"}
+                  for family, by in forecasts.items()}
     flat = {(f, m): v for f, by in scores.items() for m, v in by.items() if not np.isnan(v)}
     if not flat:
         chosen = (candidates[0], "none")
@@ -386,27 +379,25 @@ def cross_validate(spec: SiteSpec, table: pd.DataFrame) -> pd.DataFrame:
     return cross_validated(spec, table, fit_models(spec, table))
 
 
-RELIABILITY_EDGES = (0.0, 0.2, 0.4, 0.6, 0.8, 1.0)
-"""Bins of the model card's reliability table (and the daily report's line)."""
+RELIABILITY_BINS = 5
+"""Bins of the model card's reliability table (and the daily report's line): fifths of the
+probability scale."""
 
 
 def reliability_by_level(cv: pd.DataFrame, names: list[str]) -> dict[str, list[dict[str, Any]]]:
     """Per level, the season-blocked forecasts at the headline horizon in fifths of the
-    probability scale: how many, their mean and the share that reached the level."""
+    probability scale (:func:`cyanorisk.verify.reliability_table`): how many, their mean and
+    the share that reached the level (None where a bin is empty)."""
     out: dict[str, list[dict[str, Any]]] = {}
     if cv.empty:
         return out
-    edges = np.asarray(RELIABILITY_EDGES)
     for k, name in enumerate(names, start=1):
-        p, o = cv[f"model_{k}"].to_numpy(dtype=float), cv[f"outcome_{k}"].to_numpy(dtype=float)
-        keep = ~np.isnan(p) & ~np.isnan(o)
-        p, o = p[keep], o[keep]
-        which = np.clip(np.searchsorted(edges, p, side="right") - 1, 0, len(edges) - 2)
-        out[name] = [{"low": float(edges[b]), "high": float(edges[b + 1]),
-                      "n": int((which == b).sum()),
-                      "mean_forecast": float(p[which == b].mean()) if (which == b).any() else None,
-                      "observed": float(o[which == b].mean()) if (which == b).any() else None}
-                     for b in range(len(edges) - 1)]
+        table = reliability_table(cv[f"model_{k}"].to_numpy(dtype=float),
+                                  cv[f"outcome_{k}"].to_numpy(dtype=float), RELIABILITY_BINS)
+        out[name] = [{"low": float(r.bin_low), "high": float(r.bin_high), "n": int(r.n),
+                      "mean_forecast": None if r.n == 0 else float(r.mean_forecast),
+                      "observed": None if r.n == 0 else float(r.observed_frequency)}
+                     for r in table.itertuples()]
     return out
 
 

@@ -17,6 +17,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from cyanorisk.backtest import warning_view
 from cyanorisk.verify import event_counts, lead_time_days
 
 THRESHOLDS = np.round(np.arange(0.01, 1.0, 0.01), 2)
@@ -161,16 +162,6 @@ class Choice:
         if self.miss_cost is None:
             return None
         return self.miss_cost * self.table["misses"] + self.table["false_alarms"]
-
-
-def warning_view(forecasts: pd.DataFrame) -> pd.DataFrame:
-    """The backtest rows as warnings see them: the probability, outcome and horizon of the
-    horizon that raises warnings (``warn_*`` columns) in place of the headline horizon's."""
-    if "warn_probability" not in forecasts:
-        return forecasts
-    return forecasts.assign(probability=forecasts["warn_probability"],
-                            outcome=forecasts["warn_outcome"],
-                            horizon_days=forecasts["warn_horizon_days"])
 
 
 def tune_level(forecasts: pd.DataFrame, exceedances: pd.DataFrame, level: str, *,
