@@ -401,8 +401,8 @@ def test_new_store_records_its_schema_version(url):
     store = Store(url)
     with store.engine.connect() as conn:
         value = conn.execute(select(meta_table.c.value).where(meta_table.c.key == "schema_version")).scalar()
-    assert value == str(store_module.SCHEMA_VERSION) == "2"
-    assert store.schema_version() == 2
+    assert value == str(store_module.SCHEMA_VERSION) == "3"
+    assert store.schema_version() == 3
     store.close()
 
 
@@ -416,10 +416,10 @@ def test_concurrent_schema_creation_succeeds(url, tmp_path):
             expect_line(proc, "ready")
         go.touch()
         outputs = [finish(proc).strip() for proc in procs]
-    assert outputs == ["2"] * 6
+    assert outputs == [str(store_module.SCHEMA_VERSION)] * 6
     store = Store(url)
     with store.engine.connect() as conn:
-        assert conn.execute(select(meta_table)).all() == [("schema_version", "2")]
+        assert conn.execute(select(meta_table)).all() == [("schema_version", str(store_module.SCHEMA_VERSION))]
     assert {"meta", "ingested_files", "runs", "reports", "notices", "locks"} <= \
         set(inspect(store.engine).get_table_names())
     assert store.start_run(DAY, T0) == 1
@@ -453,7 +453,7 @@ def test_same_schema_is_reopened_as_it_is(url):
 def test_a_version_1_store_is_migrated_keeping_its_rows(url):
     load_sql(url, DATA / f"v1_{backend(url)}.sql")
     store = Store(url)
-    assert store.schema_version() == 2
+    assert store.schema_version() == 3
     files = store.files()
     assert [(f["id"], f["site_id"], Path(f["path"]).name, f["rows"], f["ingested_at"]) for f in files] == [
         (1, SITE, "tallowbark_aws_2024.txt",
@@ -481,6 +481,7 @@ def test_a_version_1_store_is_migrated_keeping_its_rows(url):
     assert (r2.revision, r2.level, r2.probabilities, r2.model_version, r2.thresholds) == \
         (2, None, {}, None, {})
     assert r2.issued_at == "2024-12-05T19:00:03+00:00"  # was 2024-12-06T06:00:03+11:00
+    assert (r1.summary, r2.summary) == (None, None)  # version 3 added summaries; older have none
 
     # the run left without an owner cannot be checked: left alone, unless it is stale
     assert store.close_interrupted_runs("2024-12-07T19:00:00+00:00") == 0
@@ -489,6 +490,9 @@ def test_a_version_1_store_is_migrated_keeping_its_rows(url):
     # and it goes on where it was
     assert store.start_run("2024-12-08", "2024-12-07T19:00:00+00:00", site_id=SITE) == 4
     assert store.record_report(issued()).revision == 3
+    summary = {"level_basis": "lab", "last_count_cells_per_ml": 2500.0}
+    recorded = store.record_report(dataclasses.replace(issued(), summary=summary))
+    assert store.reports(SITE, DAY)[-1].summary == summary and recorded.revision == 4
     assert store.record_notice(SITE, DAY, "m1", "subject", "body", T0) == 1
     with store.site_day_lock(SITE, DAY):
         pass
@@ -499,8 +503,8 @@ def test_a_version_1_store_is_migrated_keeping_its_rows(url):
         assert isinstance(columns["as_of"], DATE)
     store.close()
     again = Store(url)  # migrated once
-    assert again.schema_version() == 2
-    assert len(again.reports()) == 3 and len(again.runs()) == 4
+    assert again.schema_version() == 3
+    assert len(again.reports()) == 4 and len(again.runs()) == 4
     again.close()
 
 

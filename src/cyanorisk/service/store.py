@@ -73,10 +73,11 @@ from sqlalchemy.exc import IntegrityError, SQLAlchemyError
 
 from cyanorisk.errors import SiteLockedError, StoreError
 
-SCHEMA_VERSION = 2
+SCHEMA_VERSION = 3
 """Version 1: the first schema (JSON and times as text everywhere, runs without an owner, no
 notices or locks). Version 2: runs record their owner and site; ``notices`` and ``locks``; on
-PostgreSQL jsonb, timestamptz and date columns."""
+PostgreSQL jsonb, timestamptz and date columns. Version 3: a report records its ``summary``
+(what the overview and history pages show: the level's basis, the last count, data ages)."""
 
 BUSY_TIMEOUT = 5.0
 """Seconds a statement waits for another writer (SQLite busy timeout, PostgreSQL lock_timeout)."""
@@ -168,7 +169,7 @@ def json_document() -> Any:
 
 
 # ---------------------------------------------------------------------------------------------
-# Tables (version 2)
+# Tables (version 3)
 # ---------------------------------------------------------------------------------------------
 
 metadata = MetaData()
@@ -218,6 +219,7 @@ reports_table = Table(
     Column("reason", Text, nullable=False),
     Column("issued_at", Instant(), nullable=False),
     Column("run_id", Integer),
+    Column("summary", json_document()),
     UniqueConstraint("site_id", "as_of", "revision"),
 )
 
@@ -275,6 +277,10 @@ class IssuedReport:
     reason: str
     issued_at: str
     run_id: int | None = None
+    summary: dict[str, Any] | None = None
+    """What the overview and history pages show of it (see
+    :func:`cyanorisk.report.document.report_summary`); None for reports recorded before
+    schema version 3."""
 
 
 @dataclass
@@ -702,7 +708,8 @@ class Store:
         t = reports_table
         values = {f: getattr(report, f) for f in (
             "site_id", "as_of", "status", "level_rank", "level", "probabilities", "model_version",
-            "thresholds", "fingerprint", "inputs", "paths", "reason", "issued_at", "run_id")}
+            "thresholds", "fingerprint", "inputs", "paths", "reason", "issued_at", "run_id",
+            "summary")}
         columns = list(values)
         next_revision = (select(func.coalesce(func.max(t.c.revision), 0) + 1)
                          .where(t.c.site_id == report.site_id, t.c.as_of == report.as_of)
@@ -894,7 +901,7 @@ def _report(r: Any) -> IssuedReport:
         level_rank=m["level_rank"], level=m["level"], probabilities=m["probabilities"],
         model_version=m["model_version"], thresholds=m["thresholds"], fingerprint=m["fingerprint"],
         inputs=m["inputs"], paths=m["paths"], reason=m["reason"], issued_at=m["issued_at"],
-        run_id=m["run_id"])
+        run_id=m["run_id"], summary=m["summary"])
 
 
 def _notice(r: Any) -> Notice:
@@ -932,4 +939,10 @@ def _migrate_1_to_2(conn: Connection) -> None:
         conn.exec_driver_sql(f"ALTER TABLE {table} {alter}")
 
 
-MIGRATIONS: dict[int, Callable[[Connection], None]] = {1: _migrate_1_to_2}
+def _migrate_2_to_3(conn: Connection) -> None:
+    """Reports get a summary (left empty for those recorded before)."""
+    ddl = reports_table.c["summary"].type.compile(dialect=conn.dialect)
+    conn.exec_driver_sql(f"ALTER TABLE reports ADD COLUMN summary {ddl}")
+
+
+MIGRATIONS: dict[int, Callable[[Connection], None]] = {1: _migrate_1_to_2, 2: _migrate_2_to_3}
