@@ -15,6 +15,7 @@ tests that write reports or models point a copy of the configuration elsewhere w
 from __future__ import annotations
 
 import re
+import shutil
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -80,3 +81,50 @@ def demo_site(tmp_path_factory) -> DemoSite:
     table = pipeline.training_table()
     models, model_file = pipeline.train(table, cross_validation=False)
     return DemoSite(root, config_path, config, site, pipeline, clean, table, models, model_file)
+
+
+SISTER = "kestrel"
+"""A second demo-like site (another seed), for the tests of many sites."""
+SISTER_NAME = "Kestrel Weir Pool"
+SISTER_YEARS = 4
+
+
+@dataclass
+class TwoSites:
+    """The demo reservoir and a sister site in one installation, both trained."""
+
+    demo: DemoSite
+    block: str
+    """The sister's [[sites]] block."""
+
+    def write_config(self, tmp: Path, extra: str = "", name: str | None = None) -> Path:
+        """A configuration of both sites with data, reports and models under ``tmp`` (the clean
+        tables and the models copied in); ``extra`` is appended, ``name`` renames the sister."""
+        from cyanorisk.integrity import key_path
+
+        work, models = tmp / "work", tmp / "models"
+        for site_id in (self.demo.site.id, SISTER):
+            shutil.copytree(self.demo.config.data_dir / site_id, work / site_id,
+                            ignore=shutil.ignore_patterns(".*"))
+            models.mkdir(parents=True, exist_ok=True)
+            shutil.copy2(self.demo.config.models_dir / f"{site_id}.json", models)
+        shutil.copy2(key_path(self.demo.config.data_dir), key_path(work))
+        path = self.demo.write_config(tmp / "sites.toml", data_dir=work,
+                                      reports_dir=tmp / "reports", models_dir=models)
+        block = self.block if name is None else self.block.replace(SISTER_NAME, name)
+        path.write_text(path.read_text(encoding="utf-8") + block + extra, encoding="utf-8")
+        return path
+
+
+@pytest.fixture(scope="session")
+def two_sites(demo_site) -> TwoSites:
+    from cyanorisk.demo import sister_site_toml
+
+    write_demo(demo_site.config.demo.out_dir, SISTER_YEARS, DEMO_SEED + 1, SISTER)
+    block = sister_site_toml(demo_site.config_path.read_text(encoding="utf-8"), SISTER,
+                             SISTER_NAME)
+    path = demo_site.root / "two.toml"
+    path.write_text(demo_site.config_path.read_text(encoding="utf-8") + block, encoding="utf-8")
+    config = load_config(path)
+    SitePipeline.of(config, config.site(SISTER)).train(cross_validation=False)
+    return TwoSites(demo_site, block)

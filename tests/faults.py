@@ -38,7 +38,7 @@ def arm(point: str) -> None:
     if point == "after_ingest":
         _after(jobs, "_clean")
     elif point == "after_writing":
-        _after(SitePipeline, "write_report")
+        _after(SitePipeline, "write_rendered")
     elif point == "after_sending":
         _before(Store, "mark_notice_sent")
     elif point == "before_recording":

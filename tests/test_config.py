@@ -268,7 +268,8 @@ def test_period_accepts_toml_dates_and_strings(tmp_path):
 @pytest.mark.parametrize(
     ("kwargs", "key", "fragment"),
     [
-        pytest.param({"top": 'colour = "blue"'}, "colour", "valid keys here: data_dir, demo, dialects",
+        pytest.param({"top": 'colour = "blue"'}, "colour",
+                     "valid keys here: compute, data_dir, demo, dialects",
                      id="unknown-top-level-key"),
         pytest.param({"ingest": 'speed = "fast"'}, "ingest.speed", "valid keys here: bad_rows",
                      id="unknown-ingest-key"),

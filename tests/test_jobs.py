@@ -102,9 +102,15 @@ def weather_dir(tmp: Path) -> Path:
     return tmp / "demo_data" / SITE / "weather"
 
 
+OVERVIEW_FILES = {"latest.html", "latest.json", "history.html", "history.csv"}
+"""The pages every run rewrites beside the dated reports (see tests/test_overview.py)."""
+
+
 def reports_of(config, site_id: str = SITE) -> dict[str, bytes]:
+    """The dated reports of a site, by file name."""
     folder = config.reports_dir / site_id
-    return {p.name: p.read_bytes() for p in sorted(folder.iterdir())} if folder.exists() else {}
+    return {p.name: p.read_bytes() for p in sorted(folder.iterdir())
+            if p.name not in OVERVIEW_FILES} if folder.exists() else {}
 
 
 def report_path(paths: list[str], ext: str) -> str:

@@ -24,6 +24,9 @@ bad_rows = "reject"
 out_dir = "demo_data"
 [service]
 catch_up = false
+[compute]
+engine = "local"
+workers = 2
 [dialects.logger]
 separator = ","
 [dialects.logger.columns]
@@ -58,7 +61,7 @@ horizon_days = 7
 """
 
 TABLES = {"ingest", "dialects", "sample_layouts", "taxa", "schemes", "sites", "demo", "service",
-          "columns", "weather", "samples", "drivers", "alerts", "model", "period"}
+          "compute", "columns", "weather", "samples", "drivers", "alerts", "model", "period"}
 """Keys that open a table of their own (documented as a section, not as a key)."""
 
 

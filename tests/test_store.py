@@ -419,7 +419,8 @@ def test_concurrent_schema_creation_succeeds(url, tmp_path):
     assert outputs == [str(store_module.SCHEMA_VERSION)] * 6
     store = Store(url)
     with store.engine.connect() as conn:
-        assert conn.execute(select(meta_table)).all() == [("schema_version", str(store_module.SCHEMA_VERSION))]
+        version = str(store_module.SCHEMA_VERSION)
+        assert conn.execute(select(meta_table)).all() == [("schema_version", version)]
     assert {"meta", "ingested_files", "runs", "reports", "notices", "locks"} <= \
         set(inspect(store.engine).get_table_names())
     assert store.start_run(DAY, T0) == 1

@@ -332,7 +332,7 @@ def cmd_run(args: argparse.Namespace) -> int:
         from cyanorisk.service.scheduler import _now, local_today
 
         as_of = local_today(config.sites[0], _now())
-    result = run_daily(as_of, config, clock=utc_clock)
+    result = run_daily(as_of, config, clock=utc_clock, progress=_progress(config, f"run {as_of}"))
     if args.json:
         import dataclasses
 
@@ -343,8 +343,18 @@ def cmd_run(args: argparse.Namespace) -> int:
               f"{o.level or o.status}); {o.reason}")
         if o.notification:
             print(f"  notification: {o.notification}")
-    return worst([EXIT_DATA if o.action == "failed" else
+    if result.status == "interrupted":
+        print(f"cyanorisk: the run for {result.as_of} was interrupted (a worker was lost); run it "
+              "again to complete it", file=sys.stderr)
+    return worst([EXIT_DATA if o.action in ("failed", "interrupted") else
                   EXIT_INSUFFICIENT if o.status == STATUS_INSUFFICIENT else 0 for o in result.sites])
+
+
+def _progress(config: Config, label: str, total: int | None = None):
+    """A bar over the sites on a terminal, one line per site on stderr otherwise."""
+    from cyanorisk.compute import Progress
+
+    return Progress(len(config.sites) if total is None else total, label, stream=sys.stderr)
 
 
 def cmd_check(args: argparse.Namespace) -> int:
@@ -419,9 +429,42 @@ def cmd_demo(args: argparse.Namespace) -> int:
         print("\n".join(_label_balance_lines(pipeline, table)))
         models, path = pipeline.train(table)
         print(model_card_text(models.card, str(path)))
-        return _report(pipeline, None, config.store_url)
 
-    return each_site(_config(args), work)
+    config = _config(args)
+    status = each_site(config, work)
+    return worst([status, _demo_days(config)])
+
+
+DEMO_DAYS = 7
+"""Days the demo runs the daily job for (the last of the record and those before it), so that
+the overview and the history pages have something to show."""
+
+
+def _demo_days(config: Config) -> int:
+    """Run the daily job over the demo's last days, as the service would have; print the last
+    day's reports and where the overview is."""
+    import pandas as pd
+
+    from cyanorisk.forecast import STATUS_INSUFFICIENT, default_as_of
+    from cyanorisk.pipeline import SitePipeline
+    from cyanorisk.service.jobs import run_daily, utc_clock
+
+    pipeline = SitePipeline.of(config, config.sites[0])
+    last = default_as_of(pipeline.clean().weather, pipeline.spec.timezone)
+    days = pd.date_range(end=last, periods=DEMO_DAYS, freq="D")
+    result = None
+    for day in days:
+        result = run_daily(day, config, clock=utc_clock)
+    assert result is not None
+    for o in result.sites:
+        print(f"{result.as_of} {o.site_id}: {o.level or o.status} ({o.action}); daily job run "
+              f"for {days[0].date()} to {days[-1].date()}")
+        for p in o.paths:
+            print(f"  wrote {p}")
+    print(f"  overview of all sites: {config.reports_dir / 'index.html'}; each site's history: "
+          f"{config.reports_dir / '<site>' / 'history.html'}")
+    return worst([EXIT_DATA if o.action == "failed" else
+                  EXIT_INSUFFICIENT if o.status == STATUS_INSUFFICIENT else 0 for o in result.sites])
 
 
 def build_parser() -> argparse.ArgumentParser:

@@ -231,6 +231,37 @@ class ServiceSettings:
             raise ValueError("misfire_grace_hours must be positive")
 
 
+ENGINES = ("serial", "local", "cluster")
+
+
+@dataclass(frozen=True)
+class ComputeSettings:
+    """Where the work of many sites runs (the daily job, backtests and tuning)."""
+
+    engine: str = "serial"
+    """'serial': one site after another in this process (nothing to start); 'local': a Dask
+    LocalCluster of ``workers`` processes on this machine; 'cluster': the Dask scheduler at
+    ``address``. Needs Dask for 'local' and 'cluster' (``pip install 'cyanorisk[dask]'``)."""
+    workers: int | None = None
+    """Worker processes of the 'local' engine (one thread each); default: the machine's cores."""
+    address: str | None = None
+    """The Dask scheduler of the 'cluster' engine, e.g. ``tcp://host:8786``; giving it alone
+    chooses that engine. Its workers must see the configuration's paths (a shared file system)."""
+
+    def __post_init__(self) -> None:
+        if self.engine not in ENGINES:
+            raise ValueError(f"engine {self.engine!r} is not one of {', '.join(map(repr, ENGINES))}")
+        if self.workers is not None and not 1 <= self.workers <= 256:
+            raise ValueError("workers must be from 1 to 256")
+        if self.engine == "cluster" and not self.address:
+            raise ValueError("engine 'cluster' needs address = \"tcp://host:8786\" (its scheduler)")
+        if self.address is not None and self.engine != "cluster":
+            raise ValueError(f"address is for engine 'cluster', not {self.engine!r}")
+        if self.workers is not None and self.engine != "local":
+            raise ValueError(f"workers is for engine 'local', not {self.engine!r} (a cluster's "
+                             "workers are started with it)")
+
+
 @dataclass(frozen=True)
 class DemoSettings:
     """What ``cyanorisk demo`` generates."""
@@ -258,6 +289,7 @@ class Config:
     layouts: dict[str, SampleLayout] = field(default_factory=dict)
     taxa: dict[str, Taxon] = field(default_factory=dict)
     service: ServiceSettings = field(default_factory=ServiceSettings)
+    compute: ComputeSettings = field(default_factory=ComputeSettings)
 
     @property
     def store_url(self) -> str:
@@ -334,7 +366,7 @@ def _config_text(path: Path) -> str:
 
 
 _TOP = {"root", "data_dir", "reports_dir", "models_dir", "ingest", "dialects", "sample_layouts",
-        "taxa", "schemes", "sites", "demo", "service"}
+        "taxa", "schemes", "sites", "demo", "service", "compute"}
 _DIALECT = {"separator", "decimal", "encoding", "skip_lines", "date_column", "time_column",
             "timestamp_column", "date_order", "stamp_zone", "stamp_marks", "missing", "columns",
             "other_columns", "coerce_year"}
@@ -430,7 +462,14 @@ class _Reader:
             models_dir=self.path(self.get(raw, "models_dir", str, "", "models")),
             ingest=ingest, dialects=dialects, sites=sites, demo=demo, raw=raw,
             layouts=layouts, taxa=taxa,
-            service=self.service(self.get(raw, "service", dict, "", {})))
+            service=self.service(self.get(raw, "service", dict, "", {})),
+            compute=self.compute(self.get(raw, "compute", dict, "", {})))
+
+    def compute(self, table: dict) -> ComputeSettings:
+        """The compute settings; an address alone chooses the 'cluster' engine."""
+        if "address" in table and "engine" not in table:
+            table = {**table, "engine": "cluster"}
+        return self.record(table, ComputeSettings, "compute")
 
     def service(self, table: dict) -> ServiceSettings:
         """The service settings; addresses reach e-mail headers, so no line break is allowed."""

@@ -253,7 +253,7 @@ def _typed(value: float, rng: np.random.Generator, limit: float = 100.0) -> str:
     return f"{v:.0f}".replace("0", "O", 1) if "0" in f"{v:.0f}"[1:] else f"{v:.0f}"
 
 
-def lab_sheets(weather: pd.DataFrame, seed: int) -> dict[str, pd.DataFrame]:
+def lab_sheets(weather: pd.DataFrame, seed: int, site_id: str = SITE_ID) -> dict[str, pd.DataFrame]:
     """Lab result sheets (wide: one row per sample), as typed; keyed by file stem.
 
     Weekly samples (Tuesdays) from November to April, monthly (first Tuesday) otherwise, and an
@@ -284,7 +284,7 @@ def lab_sheets(weather: pd.DataFrame, seed: int) -> dict[str, pd.DataFrame]:
         sampled = pd.Timestamp(d.date()) + pd.Timedelta(hours=int(rng.integers(8, 12)),
                                                         minutes=int(rng.choice([0, 15, 30, 45])))
         delay = int(rng.integers(2, 7))
-        rows.append({"Sample": f"TB{d:%y%m%d}{chr(65 + k % 3)}", "Site": SITE_ID,
+        rows.append({"Sample": f"TB{d:%y%m%d}{chr(65 + k % 3)}", "Site": site_id,
                      "Date Sampled": f"{sampled:%d/%m/%Y}",
                      "Time": f"{sampled:%H:%M}" if rng.random() > 0.1 else "",
                      "Date Reported": (f"{sampled + pd.Timedelta(days=delay):%d/%m/%Y}"
@@ -298,8 +298,8 @@ def lab_sheets(weather: pd.DataFrame, seed: int) -> dict[str, pd.DataFrame]:
     sheets: dict[str, pd.DataFrame] = {}
     switch = pd.Timestamp("2017-07-01")
     for stem, unit, factor, part in (
-            ("tallowbark_lab_old", "cells/L", 1000.0, [r for r in rows if r["_when"] < switch]),
-            ("tallowbark_lab", "cells/mL", 1.0, [r for r in rows if r["_when"] >= switch])):
+            (f"{site_id}_lab_old", "cells/L", 1000.0, [r for r in rows if r["_when"] < switch]),
+            (f"{site_id}_lab", "cells/mL", 1.0, [r for r in rows if r["_when"] >= switch])):
         if not part:
             continue
         table = []
@@ -322,12 +322,14 @@ def lab_sheets(weather: pd.DataFrame, seed: int) -> dict[str, pd.DataFrame]:
     return sheets
 
 
-def write_demo(out_dir: Path, years: int, seed: int) -> DemoFiles:
+def write_demo(out_dir: Path, years: int, seed: int, site_id: str = SITE_ID) -> DemoFiles:
     """Simulate the demo reservoir and write its station exports, one file per calendar year.
+    Another ``site_id`` (with another ``seed``) gives a sister site of the same kind, for tests
+    and benchmarks of many sites: its folder, file names and the lab's site column say it.
 
     Files are written whole and moved into place, so an interrupted run leaves no half file.
     """
-    weather_dir = Path(out_dir) / SITE_ID / "weather"
+    weather_dir = Path(out_dir) / site_id / "weather"
     weather_dir.mkdir(parents=True, exist_ok=True)
     weather = simulate_weather(years, seed)
     export = logger_export(weather, seed)
@@ -335,7 +337,7 @@ def write_demo(out_dir: Path, years: int, seed: int) -> DemoFiles:
     year = export["_day"].dt.year
     for y in sorted(year.unique()):
         part = export[year == y]
-        path = weather_dir / f"tallowbark_aws_{y}.txt"
+        path = weather_dir / f"{site_id}_aws_{y}.txt"
         tmp = path.with_suffix(".tmp")
         header = "Tallowbark Reservoir AWS - Merrin Falls Water - logger export\n"
         with tmp.open("w", encoding="utf-8", newline="\n") as fh:
@@ -343,10 +345,10 @@ def write_demo(out_dir: Path, years: int, seed: int) -> DemoFiles:
             part[EXPORT_COLUMNS].to_csv(fh, sep="\t", index=False, lineterminator="\n")
         tmp.replace(path)
         files.append(path)
-    lab_dir = Path(out_dir) / SITE_ID / "lab"
+    lab_dir = Path(out_dir) / site_id / "lab"
     lab_dir.mkdir(parents=True, exist_ok=True)
     lab_files = []
-    for stem, frame in lab_sheets(weather, seed).items():
+    for stem, frame in lab_sheets(weather, seed, site_id).items():
         path = lab_dir / f"{stem}.csv"
         tmp = path.with_suffix(".tmp")
         with tmp.open("w", encoding="utf-8", newline="\n") as fh:
@@ -355,3 +357,15 @@ def write_demo(out_dir: Path, years: int, seed: int) -> DemoFiles:
         tmp.replace(path)
         lab_files.append(path)
     return DemoFiles(files, lab_files)
+
+
+def sister_site_toml(config_text: str, site_id: str, name: str) -> str:
+    """The ``[[sites]]`` block of the demo configuration made over for a sister site (its
+    files under ``demo_data/<site_id>/``, as :func:`write_demo` writes them for that id), to be
+    appended to a configuration; for tests and benchmarks of many sites."""
+    block = config_text[config_text.index("[[sites]]"):]
+    block = block.replace(f'id = "{SITE_ID}"', f'id = "{site_id}"', 1)
+    block = block.replace('name = "Tallowbark Reservoir"', f'name = "{name}"', 1)
+    block = block.replace(f"demo_data/{SITE_ID}/weather/{SITE_ID}_",
+                          f"demo_data/{site_id}/weather/{site_id}_")
+    return "\n" + block.replace(f"demo_data/{SITE_ID}/", f"demo_data/{site_id}/")

@@ -107,3 +107,12 @@ class LockError(CyanoriskError, RuntimeError):
 
 class RunLockedError(LockError):
     """Another run holds the lock of a site."""
+
+
+class ComputeError(CyanoriskError, RuntimeError):
+    """The compute engine cannot be started or reached (Dask missing, no scheduler there)."""
+
+
+class WorkerLostError(ComputeError):
+    """A worker (or the connection to the cluster) was lost mid-run: the run is marked
+    interrupted and the next run completes what it left."""

@@ -294,6 +294,12 @@ def sections() -> list[Section]:
                         f"`{d.pattern}`" for d in GLOSSARY)})),
         Section("[service]", "The scheduled service (`cyanorisk serve`, `run`, `status`).",
                 _from_dataclass(cfg.ServiceSettings)),
+        Section("[compute]", "Where the work of many sites runs: the daily job (`run`, `serve`) "
+                             "spreads sites over the workers, `backtest` and `tune` spread sites "
+                             "and seasons. Results are the same whichever engine runs them.",
+                _from_dataclass(cfg.ComputeSettings, unset_means={
+                    "workers": "the machine's cores"}, allowed={
+                    "engine": '"serial", "local", "cluster"'})),
         Section("[demo]", "What `cyanorisk demo` generates.",
                 _from_dataclass(cfg.DemoSettings, docs={
                     "out_dir": "Where the generated exports are written, from root.",

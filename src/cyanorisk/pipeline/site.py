@@ -42,6 +42,28 @@ from cyanorisk.tuning import Choice, accepted_toml, proposal_toml, tune_level
 Progress = Callable[[Iterable, int, str], Iterable]
 
 
+@dataclass(frozen=True)
+class RenderedReport:
+    """A report rendered (by whichever process assessed it), ready to be written."""
+
+    stem: str
+    """File name without suffix: ``<site id>_<date>``."""
+    texts: dict[str, str]
+    """Suffix ('html', 'json', 'txt') -> the file's text."""
+    document: dict
+    """The JSON document (as ``texts['json']`` holds it)."""
+
+
+def render_report(assessment: Assessment) -> RenderedReport:
+    """The three renderings of an assessment: page, JSON document, text summary."""
+    from cyanorisk.report.daily import render_html, render_json, render_text
+    from cyanorisk.report.document import report_document, report_stem
+
+    return RenderedReport(report_stem(assessment),
+                          {"html": render_html(assessment), "json": render_json(assessment),
+                           "txt": render_text(assessment)}, report_document(assessment))
+
+
 @dataclass
 class BacktestRun:
     """A backtest of a site over a span of seasons, with what its page needs."""
@@ -204,16 +226,13 @@ class SitePipeline:
 
     def write_report(self, assessment: Assessment) -> list[Path]:
         """Write the HTML, JSON and text renderings atomically, as a group."""
-        from cyanorisk.report.daily import render_html, render_json, render_text
-        from cyanorisk.report.document import report_stem
+        return self.write_rendered(render_report(assessment))
 
-        files = self.workspace.report_files(report_stem(assessment))
-        page, doc, text = render_html(assessment), render_json(assessment), render_text(assessment)
-        return write_group({
-            files["html"]: lambda tmp: tmp.write_text(page, encoding="utf-8"),
-            files["json"]: lambda tmp: tmp.write_text(doc, encoding="utf-8"),
-            files["txt"]: lambda tmp: tmp.write_text(text, encoding="utf-8"),
-        })
+    def write_rendered(self, rendered: RenderedReport) -> list[Path]:
+        """Write a rendered report's files atomically, as a group."""
+        files = self.workspace.report_files(rendered.stem)
+        return write_group({files[suffix]: (lambda tmp, text=text: tmp.write_text(text, encoding="utf-8"))
+                            for suffix, text in rendered.texts.items()})
 
     # 5. backtest and tune ----------------------------------------------------------------------
 

@@ -119,3 +119,18 @@ def report_document(a: Assessment) -> dict[str, Any]:
 def report_stem(a: Assessment) -> str:
     """File name of a report without its suffix: ``<site id>_<date>``."""
     return f"{a.spec.site_id}_{a.as_of.date()}"
+
+
+def report_summary(doc: dict[str, Any]) -> dict[str, Any]:
+    """What the overview and history pages show of a report, from its JSON document; recorded
+    with the report in the store (so that those pages need no report file)."""
+    o, f, fr, lab = doc["observed"], doc["forecast"], doc["freshness"], doc["in_force"]
+    return {"site_name": doc["site"]["name"], "headline": doc["headline"],
+            "level_basis": doc["level_basis"], "in_force_level": lab["level"],
+            "last_count_cells_per_ml": o["cyano_cells_per_ml"], "last_count_censor": o["censor"],
+            "last_count_level": o["level"], "last_sampled_at": o["last_sampled_at"],
+            "sample_age_days": o["age_days"], "last_weather_local": fr["last_weather_local"],
+            "weather_age_days": fr["weather_age_days"], "changes": list(doc["changes"]),
+            "horizon_days": f["horizon_days"], "warn_horizon_days": f["warn_horizon_days"],
+            "warned_within": dict(f["warned_within"] or {}),
+            "status_reasons": list(doc["status_reasons"])}

@@ -19,6 +19,9 @@
   the report is recorded, then pending notices are delivered and marked sent. A run killed at
   any point is repaired by the next: unrecorded reports are issued again, undelivered notices
   are sent again (at least once; their Message-ID lets a mail reader spot a repeat).
+- Spread over workers: a site's work (clean, assess, render: :func:`assess_site`) runs on the
+  compute engine of ``[compute]``; this process takes the locks, decides what needs doing,
+  and alone writes the store, the report files, the notices and the overview pages.
 """
 
 from __future__ import annotations
@@ -27,7 +30,8 @@ import dataclasses
 import hashlib
 import json
 import smtplib
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
+from contextlib import ExitStack
 from dataclasses import dataclass, field
 from datetime import date
 from email.message import EmailMessage
@@ -37,11 +41,28 @@ from typing import Any
 import pandas as pd
 
 from cyanorisk.atomic import write_group
-from cyanorisk.config import Config, Site
-from cyanorisk.errors import CyanoriskError, RunLockedError, SiteLockedError, StoreError
-from cyanorisk.forecast import STATUS_ASSESSED, STATUS_NONE, Assessment, changes_since, no_assessment
-from cyanorisk.pipeline import SitePipeline
+from cyanorisk.compute import Done, Engine, Progress, SerialEngine, open_engine, run_all
+from cyanorisk.config import Config, ServiceSettings, Site
+from cyanorisk.errors import (
+    ComputeError,
+    CyanoriskError,
+    RunLockedError,
+    SiteLockedError,
+    StoreError,
+    WorkerLostError,
+)
+from cyanorisk.forecast import (
+    STATUS_ASSESSED,
+    STATUS_NONE,
+    Assessment,
+    Previous,
+    changes_since,
+    no_assessment,
+)
+from cyanorisk.pipeline import SitePipeline, SiteWorkspace
 from cyanorisk.pipeline.clean import file_digest
+from cyanorisk.pipeline.site import RenderedReport, render_report
+from cyanorisk.report.document import report_summary
 from cyanorisk.service.history import previous_report
 from cyanorisk.service.locks import RunLock
 from cyanorisk.service.locks import site_lock as lock_of_site
@@ -51,10 +72,10 @@ from cyanorisk.version import __version__
 Clock = Callable[[], str]
 """Gives the current instant as ISO 8601 text (injected; the service passes the real clock)."""
 
-__all__ = ["RunLockedError", "RunResult", "SiteOutcome", "deliver_notices", "run_daily",
-           "run_site", "site_lock", "utc_clock"]
+__all__ = ["Assessed", "RunLockedError", "RunResult", "SiteOutcome", "assess_site",
+           "deliver_notices", "run_daily", "site_lock", "utc_clock"]
 
-ACTIONS = ("issued", "unchanged", "failed", "locked")
+ACTIONS = ("issued", "unchanged", "failed", "locked", "interrupted")
 
 
 @dataclass
@@ -64,8 +85,9 @@ class SiteOutcome:
     site_id: str
     action: str
     """'issued' (a new revision), 'unchanged' (same inputs as the last revision), 'failed' (the
-    cause in ``reason``; a report already issued for the day stays) or 'locked' (another run
-    holds the site)."""
+    cause in ``reason``; a report already issued for the day stays), 'locked' (another run
+    holds the site) or 'interrupted' (a worker was lost before the site was done; the next run
+    does it)."""
     revision: int | None = None
     status: str | None = None
     level: str | None = None
@@ -81,12 +103,13 @@ class RunResult:
     as_of: str
     run_id: int
     status: str
-    """'ok'; 'partial' when some sites failed or were locked; 'failed' when every site did."""
+    """'ok'; 'partial' when some sites failed or were locked; 'failed' when every site did;
+    'interrupted' when a worker was lost mid-run (the next run completes it)."""
     sites: list[SiteOutcome]
 
     @property
     def failed(self) -> list[SiteOutcome]:
-        return [o for o in self.sites if o.action in ("failed", "locked")]
+        return [o for o in self.sites if o.action in ("failed", "locked", "interrupted")]
 
 
 sha256_of = file_digest
@@ -145,18 +168,24 @@ def _changes(old: dict[str, Any], new: dict[str, Any]) -> list[str]:
     return said
 
 
-def _clean(pipeline: SitePipeline, store: Store, when: str) -> None:
-    """Clean data for the site (shared with the command line); record the files behind it."""
+def _clean(store: Store, site_id: str, files: list[tuple[str, str, dict[str, int]]],
+           when: str) -> None:
+    """Record the raw files behind a site's clean data (path, content hash, row accounts)."""
+    for path, digest, rows in files:
+        store.record_file(site_id, path, digest, rows, when)
+
+
+def _file_rows(pipeline: SitePipeline) -> list[tuple[str, str, dict[str, int]]]:
+    """Clean data for the site (shared with the command line); the files behind it."""
     clean = pipeline.clean()
     weather_files = {str(p) for p in pipeline.site.weather.files}
-    for path, digest in pipeline.digests().items():
-        rows = clean.rows["weather"] if path in weather_files else clean.rows["samples"] or {}
-        store.record_file(pipeline.spec.site_id, path, digest, rows, when)
+    return [(path, digest, clean.rows["weather"] if path in weather_files
+             else clean.rows["samples"] or {}) for path, digest in pipeline.digests().items()]
 
 
 # notices -----------------------------------------------------------------------------------------
 
-def notice_for(config: Config, assessment: Assessment, previous: IssuedReport | None,
+def notice_for(service: ServiceSettings, assessment: Assessment, previous: IssuedReport | None,
                key: str) -> EmailMessage | None:
     """The notification of an assessment, when the level stated rose above the previous
     report's, or a site that had an outlook has none (insufficient data, no assessment). Levels
@@ -174,30 +203,13 @@ def notice_for(config: Config, assessment: Assessment, previous: IssuedReport | 
     msg = EmailMessage()
     msg["Subject"] = (f"cyanorisk: {spec.name} rose to {assessment.level} ({day})" if rose else
                       f"cyanorisk: {spec.name}: {assessment.status}, no outlook ({day})")
-    msg["From"] = config.service.mail_from
-    msg["To"] = ", ".join(config.service.mail_to) or "water-quality team"
+    msg["From"] = service.mail_from
+    msg["To"] = ", ".join(service.mail_to) or "water-quality team"
     msg["Message-ID"] = f"<{spec.site_id}.{day}.{key}@cyanorisk>"  # the same for a repeat
     was = previous.level if previous is not None else "no earlier report"
     msg.set_content(f"{assessment.headline}\n\nPrevious report: {was}.\n\n" + "\n".join(
         f"- {x}" for x in assessment.cautions) + f"\n\n{assessment.deferral}\n")
     return msg
-
-
-def _queue_notice(config: Config, pipeline: SitePipeline, store: Store, assessment: Assessment,
-                  previous: IssuedReport | None, fp: str, when: str) -> str | None:
-    """Write the notice to the outbox folder and record it as pending; its file, or None."""
-    key = fp[:16]
-    msg = notice_for(config, assessment, previous, key)
-    if msg is None:
-        return None
-    day = str(assessment.as_of.date())
-    site_id = pipeline.spec.site_id
-    path = pipeline.workspace.notice_file(f"{site_id}_{day}_{key}.eml")
-    if not path.exists():
-        write_group({path: lambda tmp: tmp.write_bytes(bytes(msg))})
-    store.record_notice(site_id, day, f"{site_id}/{day}/{key}", str(msg["Subject"]),
-                        msg.get_content(), when, str(path))
-    return str(path)
 
 
 def deliver_notices(config: Config, store: Store, clock: Clock,
@@ -231,33 +243,74 @@ def _send(config: Config, path: str | None) -> None:
         smtp.send_message(msg)
 
 
-# one site ----------------------------------------------------------------------------------------
+# one site: the task, in whichever process runs it ---------------------------------------------
 
-def _issue(config: Config, pipeline: SitePipeline, store: Store, as_of: str, run_id: int,
-           clock: Clock, assessment: Assessment, inputs: dict[str, Any], fp: str,
-           previous_same_day: IssuedReport | None, failure: str | None = None) -> SiteOutcome:
-    site_id = pipeline.spec.site_id
-    previous = store.latest_report(site_id, as_of) or store.latest_report(site_id, before=as_of)
-    assessment.changes = changes_since(assessment, previous_report(store, site_id, as_of))
-    paths = [str(p) for p in pipeline.write_report(assessment)]
-    f = assessment.forecast
-    reason = ("first report for this day" if previous_same_day is None else
-              "inputs changed: " + ", ".join(_changes(previous_same_day.inputs, inputs) or
-                                             ["status changed"]))
+@dataclass
+class Assessed:
+    """What the work of one site gave, as its task returns it to the coordinating process."""
+
+    site_id: str
+    fingerprint: str
+    inputs: dict[str, Any]
+    failure: str | None = None
+    """Why the site could not be assessed (None: it was)."""
+    rendered: RenderedReport | None = None
+    """The report to issue; None when a failure leaves the day's report as it is."""
+    record: dict[str, Any] = field(default_factory=dict)
+    """status, level_rank, level, probabilities, model_version and thresholds of the report."""
+    notice: bytes | None = None
+    """The notification of the report (an e-mail message), when one is due."""
+    notice_subject: str = ""
+    notice_body: str = ""
+    files: list[tuple[str, str, dict[str, int]]] = field(default_factory=list)
+    """The raw files behind the clean data: path, content hash, row accounts."""
+
+
+def assess_site(site: Site, workspace: SiteWorkspace, config_path: str, service: ServiceSettings,
+                as_of: str, run_day: date, inputs: dict[str, Any], failure: str | None,
+                same_day: IssuedReport | None, previous: IssuedReport | None,
+                changes_from: Previous | None) -> Assessed:
+    """Clean one site's data, assess the day and render its report and notice. Runs wherever
+    the compute engine puts it; writes only the site's clean tables (its own cache) and returns
+    the rest for the coordinating process to write and record. Never raises for the site's own
+    problems: they come back in :attr:`Assessed.failure` with a 'no assessment' report (unless
+    a report issued earlier for the day stays, or the same failure was reported already).
+
+    ``failure`` is a problem found before (reading the inputs); ``same_day`` the report issued
+    for the day already, ``previous`` the one a rise is measured from, ``changes_from`` the one
+    'what changed' compares with."""
+    pipeline = SitePipeline(site, workspace, config_path, run_day)
+    files: list[tuple[str, str, dict[str, int]]] = []
+    assessment = None
+    if failure is None:
+        try:
+            files = _file_rows(pipeline)
+            assessment = pipeline.assess(pd.Timestamp(as_of))
+        except Exception as exc:  # one site's problem: a 'no assessment' report says it
+            failure = _reason(exc)
     if failure is not None:
-        reason = f"no assessment: {failure}; {reason}"
-    when = clock()
-    note = _queue_notice(config, pipeline, store, assessment, previous, fp, when)
-    thresholds = {"warn_at": dict(f.thresholds.warn_at) if f.thresholds else {},
-                  "source": f.thresholds.source if f.thresholds else "not applied"}
-    recorded = store.record_report(IssuedReport(
-        site_id=site_id, as_of=as_of, revision=0, status=assessment.status,
-        level_rank=assessment.level_rank, level=assessment.level,
-        probabilities=dict(f.probabilities or {}),
-        model_version=assessment.model.trained_with, thresholds=thresholds, fingerprint=fp,
-        inputs=inputs, paths=paths, reason=reason, issued_at=when, run_id=run_id))
-    return SiteOutcome(site_id, "issued", recorded.revision, assessment.status, assessment.level,
-                       reason, paths, note)
+        inputs = {**inputs, "error": failure}
+    fp = fingerprint(as_of, inputs)
+    out = Assessed(site.id, fp, inputs, failure, files=files)
+    if failure is not None:
+        if same_day is not None and (same_day.status != STATUS_NONE or same_day.fingerprint == fp):
+            return out
+        assessment = no_assessment(pipeline.spec, pd.Timestamp(as_of), failure,
+                                   pipeline.lab_level_or_none(as_of))
+    assert assessment is not None
+    assessment.changes = changes_since(assessment, changes_from)
+    out.rendered = render_report(assessment)
+    f = assessment.forecast
+    out.record = {"status": assessment.status, "level_rank": assessment.level_rank,
+                  "level": assessment.level, "probabilities": dict(f.probabilities or {}),
+                  "model_version": assessment.model.trained_with,
+                  "thresholds": {"warn_at": dict(f.thresholds.warn_at) if f.thresholds else {},
+                                 "source": f.thresholds.source if f.thresholds else "not applied"}}
+    msg = notice_for(service, assessment, previous, fp[:16])
+    if msg is not None:
+        out.notice, out.notice_subject, out.notice_body = (bytes(msg), str(msg["Subject"]),
+                                                           msg.get_content())
+    return out
 
 
 def _reason(exc: BaseException) -> str:
@@ -265,75 +318,146 @@ def _reason(exc: BaseException) -> str:
     return text if isinstance(exc, CyanoriskError) else f"{type(exc).__name__}: {text}"
 
 
-def run_site(config: Config, site: Site, store: Store, as_of: str, run_id: int,
-             clock: Clock, run_day: date | None = None) -> SiteOutcome:
-    """Assess one site for one day, unless the same inputs were already reported. ``run_day``
-    is the day of the run by the service's clock (see :class:`SitePipeline`). Never raises for
-    the site's own problems: they come back as a 'failed' outcome with their cause."""
-    pipeline = SitePipeline.of(config, site, run_day)
-    previous = store.latest_report(site.id, as_of)
-    inputs: dict[str, Any] = {}
+# one site: the coordinator's part -------------------------------------------------------------
+
+@dataclass
+class _Claim:
+    """A site whose locks the coordinator holds while its task runs."""
+
+    pipeline: SitePipeline
+    locks: ExitStack
+    same_day: IssuedReport | None
+
+
+def _start(config: Config, site: Site, store: Store, day: str, clock: Clock,
+           run_day: date) -> tuple[SiteOutcome | None, _Claim | None, tuple]:
+    """Take a site's locks, then settle it here (locked, or the same inputs as the day's
+    report: an outcome) or hand back its claim and the arguments of its task."""
+    locks = ExitStack()
     try:
-        inputs = site_inputs(pipeline)
-        fp = fingerprint(as_of, inputs)
-        if previous is not None and previous.fingerprint == fp and previous.status != STATUS_NONE \
-                and all(Path(p).exists() for p in previous.paths):
-            return SiteOutcome(site.id, "unchanged", previous.revision, previous.status,
-                               previous.level, "same inputs as the last revision", previous.paths)
-        _clean(pipeline, store, clock())
-        assessment = pipeline.assess(pd.Timestamp(as_of))
-    except StoreError:
-        raise
-    except Exception as exc:  # the service must not fall over on one site: record and go on
-        return _failed(config, pipeline, store, as_of, run_id, clock, previous, inputs,
-                       _reason(exc))
-    return _issue(config, pipeline, store, as_of, run_id, clock, assessment, inputs, fp, previous)
-
-
-def _failed(config: Config, pipeline: SitePipeline, store: Store, as_of: str, run_id: int,
-            clock: Clock, previous: IssuedReport | None, inputs: dict[str, Any],
-            reason: str) -> SiteOutcome:
-    """A site that could not be assessed: the report already issued for the day stays (the
-    failure is the run's record); a day without one gets a 'no assessment' report."""
-    site_id = pipeline.spec.site_id
-    if previous is not None and previous.status != STATUS_NONE:
-        since = _changes(previous.inputs, inputs) if inputs else []
-        after = f", after: {', '.join(since)}" if since else ""
-        return SiteOutcome(site_id, "failed", previous.revision, previous.status, previous.level,
-                           f"{reason} (the report issued earlier for this day, revision "
-                           f"{previous.revision}, stays{after})", previous.paths)
-    inputs = {**inputs, "error": reason}
-    fp = fingerprint(as_of, inputs)
-    if previous is not None and previous.fingerprint == fp:
-        return SiteOutcome(site_id, "failed", previous.revision, STATUS_NONE, None, reason,
-                           previous.paths)
-    assessment = no_assessment(pipeline.spec, pd.Timestamp(as_of), reason,
-                               pipeline.lab_level_or_none(as_of))
-    outcome = _issue(config, pipeline, store, as_of, run_id, clock, assessment, inputs, fp,
-                     previous, failure=reason)
-    outcome.action, outcome.reason = "failed", reason
-    return outcome
-
-
-def _locked_run_site(config: Config, site: Site, store: Store, day: str, run_id: int,
-                     clock: Clock, run_day: date) -> SiteOutcome:
-    """One site under its locks; a held lock is a 'locked' outcome, a site that cannot even be
-    written for (its report folder, its notice) a 'failed' one."""
-    try:
-        with site_lock(config, site), store.site_day_lock(site.id, day, when=clock()):
-            return run_site(config, site, store, day, run_id, clock, run_day)
+        locks.enter_context(site_lock(config, site))
+        locks.enter_context(store.site_day_lock(site.id, day, when=clock()))
     except (RunLockedError, SiteLockedError) as exc:
-        return SiteOutcome(site.id, "locked", reason=_reason(exc))
+        locks.close()
+        return SiteOutcome(site.id, "locked", reason=_reason(exc)), None, ()
+    except BaseException:
+        locks.close()
+        raise
+    try:
+        pipeline = SitePipeline.of(config, site, run_day)
+        same_day = store.latest_report(site.id, day)
+        inputs: dict[str, Any] = {}
+        failure = None
+        try:
+            inputs = site_inputs(pipeline)
+        except Exception as exc:  # e.g. a file pattern that matches nothing: this site only
+            failure = _reason(exc)
+        if failure is None:
+            fp = fingerprint(day, inputs)
+            if same_day is not None and same_day.fingerprint == fp \
+                    and same_day.status != STATUS_NONE and all(Path(p).exists() for p in same_day.paths):
+                locks.close()
+                return SiteOutcome(site.id, "unchanged", same_day.revision, same_day.status,
+                                   same_day.level, "same inputs as the last revision",
+                                   same_day.paths), None, ()
+        previous = same_day or store.latest_report(site.id, before=day)
+        args = (site, pipeline.workspace, config.path, config.service, day, run_day, inputs, failure,
+                same_day, previous, previous_report(store, site.id, day))
+        return None, _Claim(pipeline, locks, same_day), args
+    except BaseException:
+        locks.close()
+        raise
+
+
+def _finish(store: Store, claim: _Claim, done: Done, day: str, run_id: int,
+            clock: Clock) -> SiteOutcome:
+    """File a site's result: record its files, write its report, queue its notice, record the
+    report; then release its locks."""
+    site_id = claim.pipeline.spec.site_id
+    try:
+        if done.error is not None:  # the task fell over (e.g. a page that cannot be drawn)
+            return SiteOutcome(site_id, "failed", reason=_reason(done.error))
+        result: Assessed = done.value
+        if result.files:
+            _clean(store, site_id, result.files, clock())
+        same_day = claim.same_day
+        if result.rendered is None:  # a failure, and the report issued earlier stays
+            assert result.failure is not None and same_day is not None
+            if same_day.status == STATUS_NONE:
+                return SiteOutcome(site_id, "failed", same_day.revision, STATUS_NONE, None,
+                                   result.failure, same_day.paths)
+            since = _changes(same_day.inputs, result.inputs) if len(result.inputs) > 1 else []
+            after = f", after: {', '.join(since)}" if since else ""
+            return SiteOutcome(site_id, "failed", same_day.revision, same_day.status,
+                               same_day.level, f"{result.failure} (the report issued earlier for "
+                               f"this day, revision {same_day.revision}, stays{after})",
+                               same_day.paths)
+        outcome = _issue(claim.pipeline, store, day, run_id, clock, result, same_day)
+        if result.failure is not None:
+            outcome.action, outcome.reason = "failed", result.failure
+        return outcome
     except StoreError:
         raise
     except Exception as exc:  # e.g. the report folder cannot be written: this site only
-        return SiteOutcome(site.id, "failed", reason=_reason(exc))
+        return SiteOutcome(site_id, "failed", reason=_reason(exc))
+    finally:
+        claim.locks.close()
 
+
+def _issue(pipeline: SitePipeline, store: Store, as_of: str, run_id: int, clock: Clock,
+           result: Assessed, same_day: IssuedReport | None) -> SiteOutcome:
+    """Write the report's files, queue its notice, record it: in this order (crash-safe)."""
+    assert result.rendered is not None
+    site_id = pipeline.spec.site_id
+    paths = [str(p) for p in pipeline.write_rendered(result.rendered)]
+    reason = ("first report for this day" if same_day is None else
+              "inputs changed: " + ", ".join(_changes(same_day.inputs, result.inputs) or
+                                             ["status changed"]))
+    if result.failure is not None:
+        reason = f"no assessment: {result.failure}; {reason}"
+    when = clock()
+    note = _queue_notice(pipeline, store, result, as_of, when)
+    r = result.record
+    recorded = store.record_report(IssuedReport(
+        site_id=site_id, as_of=as_of, revision=0, status=r["status"], level_rank=r["level_rank"],
+        level=r["level"], probabilities=r["probabilities"], model_version=r["model_version"],
+        thresholds=r["thresholds"], fingerprint=result.fingerprint, inputs=result.inputs,
+        paths=paths, reason=reason, issued_at=when, run_id=run_id,
+        summary=report_summary(result.rendered.document)))
+    return SiteOutcome(site_id, "issued", recorded.revision, r["status"], r["level"], reason,
+                       paths, note)
+
+
+def _queue_notice(pipeline: SitePipeline, store: Store, result: Assessed, day: str,
+                  when: str) -> str | None:
+    """Write the notice to the outbox folder and record it as pending; its file, or None."""
+    if result.notice is None:
+        return None
+    key = result.fingerprint[:16]
+    site_id = pipeline.spec.site_id
+    path = pipeline.workspace.notice_file(f"{site_id}_{day}_{key}.eml")
+    if not path.exists():
+        data = result.notice
+        write_group({path: lambda tmp: tmp.write_bytes(data)})
+    store.record_notice(site_id, day, f"{site_id}/{day}/{key}", result.notice_subject,
+                        result.notice_body, when, str(path))
+    return str(path)
+
+
+# the run --------------------------------------------------------------------------------------
 
 def run_daily(as_of: str | pd.Timestamp, config: Config, *, clock: Clock,
-              store: Store | None = None) -> RunResult:
+              store: Store | None = None, engine: Engine | None = None,
+              progress: Progress | None = None) -> RunResult:
     """Run the daily job for local date ``as_of`` over every site of ``config``, each under its
-    own locks, then deliver the outbox's pending notices (those of earlier runs included).
+    own locks, then deliver the outbox's pending notices (those of earlier runs included), then
+    rewrite the overview pages.
+
+    The sites' work is spread over ``engine`` (default: the one ``[compute]`` configures;
+    'serial' when it cannot start, said in the run's record); this process alone writes the
+    store, the reports and the notices, filing each site as its result comes. A worker lost
+    mid-run leaves the run 'interrupted', with the sites it had not finished; the next run
+    completes them (what was recorded is not done again).
 
     Raises
     ------
@@ -341,31 +465,88 @@ def run_daily(as_of: str | pd.Timestamp, config: Config, *, clock: Clock,
         When the store cannot be used (nothing is assessed then).
     """
     day = str(pd.Timestamp(as_of).date())
-    own = store is None
+    own_store, own_engine = store is None, engine is None
     store = store or Store(config.store_url)
+    claims: dict[str, _Claim] = {}
     try:
         now = clock()
         store.close_interrupted_runs(now)  # owner-aware: only runs whose process is gone
         single = config.sites[0].id if len(config.sites) == 1 else None
         run_id = store.start_run(day, now, site_id=single)
         today = pd.Timestamp(now).date()
-        outcomes = [_locked_run_site(config, site, store, day, run_id, clock, today)
-                    for site in config.sites]
+        notes: list[str] = []
+        if engine is None:
+            try:
+                engine = open_engine(config.compute)
+            except ComputeError as exc:  # the reports matter more than the speed
+                notes.append(f"{exc}; the sites ran one after another in this process")
+                engine = SerialEngine()
+        outcomes: dict[str, SiteOutcome] = {}
+
+        def settle(outcome: SiteOutcome) -> None:
+            outcomes[outcome.site_id] = outcome
+            if progress is not None:
+                progress.step(outcome.site_id, outcome.action)
+
+        def tasks() -> Iterator[tuple[str, tuple]]:
+            for site in config.sites:
+                outcome, claim, args = _start(config, site, store, day, clock, today)
+                if outcome is not None:
+                    settle(outcome)
+                    continue
+                assert claim is not None
+                claims[site.id] = claim
+                yield site.id, args
+
+        lost = None
+        try:
+            window = 1 if isinstance(engine, SerialEngine) else 2 * engine.workers
+            for done in run_all(engine, assess_site, tasks(), window=window):
+                settle(_finish(store, claims.pop(done.key), done, day, run_id, clock))
+        except StoreError:
+            raise
+        except Exception as exc:  # a worker or the cluster lost, or the engine itself failed
+            lost = str(exc) if isinstance(exc, WorkerLostError) else \
+                f"the compute engine failed: {_reason(exc)}"
+            for site in config.sites:
+                if site.id not in outcomes:
+                    settle(SiteOutcome(site.id, "interrupted", reason=f"{lost}; the next run "
+                                                                       "completes this site"))
+        ordered = [outcomes[s.id] for s in config.sites]
         problems = deliver_notices(config, store, clock, [s.id for s in config.sites])
         for site_id, text in problems:  # the report stands; the notice is retried next run
-            for o in outcomes:
-                if o.site_id == site_id:
-                    o.reason = f"{o.reason}; {text}" if o.reason else text
-        bad = [o for o in outcomes if o.action in ("failed", "locked")]
-        status = "ok" if not bad and not problems else (
-            "failed" if len(bad) == len(outcomes) else "partial")
-        errors = "; ".join([f"{o.site_id}: {o.reason}" for o in bad]
+            o = outcomes[site_id]
+            o.reason = f"{o.reason}; {text}" if o.reason else text
+        bad = [o for o in ordered if o.action in ("failed", "locked", "interrupted")]
+        status = "interrupted" if lost else "ok" if not bad and not problems else (
+            "failed" if len(bad) == len(ordered) else "partial")
+        notes += overview_problems(config, store, day)
+        errors = "; ".join(([lost] if lost else []) + notes
+                           + [f"{o.site_id}: {o.reason}" for o in bad if o.action != "interrupted"]
                            + [f"{site_id}: {text}" for site_id, text in problems])
         store.end_run(run_id, clock(), status, errors or None)
-        return RunResult(day, run_id, status, outcomes)
+        return RunResult(day, run_id, status, ordered)
     finally:
-        if own:
+        for claim in claims.values():
+            claim.locks.close()
+        if own_engine and engine is not None:
+            engine.close()
+        if own_store:
             store.close()
+
+
+def overview_problems(config: Config, store: Store, day: str) -> list[str]:
+    """Rewrite the overview, the sites' latest pages and histories from the store; what could
+    not be written, in sentences (the run's reports stand either way)."""
+    from cyanorisk.report.overview import write_overview
+
+    try:
+        write_overview(config, store)
+        return []
+    except StoreError:
+        raise
+    except Exception as exc:
+        return [f"the overview pages could not be written: {_reason(exc)}"]
 
 
 def utc_clock() -> str:
