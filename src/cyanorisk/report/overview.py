@@ -60,12 +60,19 @@ table.sites .badge { padding: 0.15em 0.5em 0.15em 0.3em; font-size: 0.85em; }
   table.sites td[data-label]::before { content: attr(data-label) ": "; font-weight: 600; }
 }
 @media print {
-  body { font-size: 8pt; }
-  h1 { font-size: 12pt; } .sub { margin-bottom: 0.3em; }
-  table.sites td, table.sites th { padding: 0.1em 0.25em; }
-  table.sites .badge { font-size: 7.5pt; }
-  .more { display: none; }
-  .links { display: none; }
+  @page { size: A4; margin: 10mm; }
+  body { font-size: 7.5pt; line-height: 1.2; }
+  table.sites { table-layout: fixed; }
+  h1 { font-size: 11pt; } .sub { margin: 0 0 0.3em; }
+  table.sites td, table.sites th { padding: 0.05em 0.25em; }
+  table.sites .badge { font-size: 6.5pt; padding: 0 0.3em 0 0.1em; }
+  table.sites .badge svg { width: 10px; height: 10px; }
+  table.sites col.site { width: 14%; } table.sites col.level { width: 11%; }
+  table.sites col.outlook { width: 43%; } table.sites col.changes { width: 16%; }
+  table.sites col.ages { width: 16%; } table.sites col.links { width: 0; visibility: collapse; }
+  .more, .said, .site-id, .basis { display: none; }
+  .probs { font-size: 1em; color: inherit; }
+  .links { display: none; } .ages { white-space: normal; }
 }
 """
 
@@ -135,17 +142,23 @@ def _level_cell(site: Site, report: IssuedReport | None, summary: dict[str, Any]
 
 
 def _outlook_cell(row: Row) -> str:
+    """The report's headline, then its probabilities and any warning raised by a longer
+    horizon (in print only the latter, to keep a row to two lines)."""
     r = row.report
     if r is None or not r.probabilities:
         return f'<span class="attention">{e(row.attention or "no outlook")}</span>'
     days = row.summary.get("horizon_days")
-    within = f" within {days} days" if days else ""
-    parts = ", ".join(f"{e(name)} {percent(p)}" for name, p in r.probabilities.items())
+    probs = ", ".join(f"{name} {percent(p)}" for name, p in r.probabilities.items())
+    probs += f" within {days} days" if days else ""
+    longer = {name: d for name, d in (row.summary.get("warned_within") or {}).items()
+              if d and days and d > days}
+    if longer:
+        name = list(longer)[-1]
+        probs += f"; warning: {name} within {longer[name]} days"
     note = f'<br><span class="attention">{e(row.attention)}</span>' if row.attention else ""
     headline = row.summary.get("headline")
-    said = f"{e(headline)}<span class='probs more'>{parts}{e(within)}</span>" if headline else \
-        f"{parts}{e(within)}"
-    return f"{said}{note}"
+    said = f'<span class="said">{e(headline)}</span>' if headline else ""
+    return f'{said}<span class="probs">{e(probs)}</span>{note}'
 
 
 def _changes_cell(summary: dict[str, Any]) -> str:
@@ -163,10 +176,10 @@ def _ages_cell(summary: dict[str, Any]) -> str:
     weather = summary.get("weather_age_days")
     count = summary.get("last_count_cells_per_ml")
     sample_text = ("none" if sample is None else
-                   f"{duration(sample)} old ({cells(count, summary.get('last_count_censor'))})")
-    weather_text = "none" if weather is None else f"{duration(weather)} old"
-    return (f'<span class="ages">last sample {e(sample_text)}</span><br>'
-            f'<span class="ages">last weather {e(weather_text)}</span>')
+                   f"{duration(sample)} ({cells(count, summary.get('last_count_censor'))})")
+    weather_text = "none" if weather is None else duration(weather)
+    return (f'<span class="ages">sample {e(sample_text)}</span><br>'
+            f'<span class="ages">weather {e(weather_text)}</span>')
 
 
 def overview_html(rows: list[Row], title: str, latest_day: str | None) -> str:
@@ -177,11 +190,11 @@ def overview_html(rows: list[Row], title: str, latest_day: str | None) -> str:
         report_date = row.report.as_of if row.report is not None else "none"
         body.append(
             f'<tr data-site="{sid}"><td data-label="Site"><strong>{e(row.site.spec.name)}</strong>'
-            f'<br><span class="small">{sid}; report of {e(report_date)}</span></td>'
+            f'<br><span class="small site-id">{sid}; report of {e(report_date)}</span></td>'
             f'<td data-label="Level stated">{_level_cell(row.site, row.report, row.summary)}</td>'
             f'<td data-label="Outlook">{_outlook_cell(row)}</td>'
             f'<td data-label="Since the previous report">{_changes_cell(row.summary)}</td>'
-            f'<td data-label="Age of data">{_ages_cell(row.summary)}</td>'
+            f'<td data-label="Age of the last data">{_ages_cell(row.summary)}</td>'
             f'<td class="links"><a class="latest" href="{sid}/latest.html">latest report</a>'
             f'<a class="history" href="{sid}/history.html">history</a></td></tr>')
     attention = sum(1 for r in rows if r.attention)
@@ -199,7 +212,7 @@ page supports, never replaces, them.</p></header>
 <table class="sites"><colgroup><col class="site"><col class="level"><col class="outlook">
 <col class="changes"><col class="ages"><col class="links"></colgroup>
 <thead><tr><th>Site</th><th>Level stated</th><th>Outlook</th>
-<th>Since the previous report</th><th>Age of data</th><th>Pages</th></tr></thead>
+<th>Since the previous report</th><th>Age of the last data</th><th class="links">Pages</th></tr></thead>
 <tbody>
 {chr(10).join(body)}
 </tbody></table>
