@@ -49,7 +49,7 @@ table.sites td, table.sites th { padding: 0.3em 0.45em; }
 table.sites .badge { padding: 0.15em 0.5em 0.15em 0.3em; font-size: 0.85em; }
 .probs { display: block; font-size: 0.82em; color: #444; }
 .attention { color: #8a1c1c; font-weight: 600; }
-.basis { display: block; font-size: 0.82em; color: #444; }
+.basis, .count { display: block; font-size: 0.82em; color: #444; }
 .links a { white-space: nowrap; margin-right: 0.6em; }
 .ages { white-space: nowrap; }
 @media (max-width: 40em) {
@@ -61,17 +61,17 @@ table.sites .badge { padding: 0.15em 0.5em 0.15em 0.3em; font-size: 0.85em; }
 }
 @media print {
   @page { size: A4; margin: 10mm; }
-  body { font-size: 7.5pt; line-height: 1.2; }
+  body { font-size: 7pt; line-height: 1.2; }
   table.sites { table-layout: fixed; }
   h1 { font-size: 11pt; } .sub { margin: 0 0 0.3em; }
   table.sites td, table.sites th { padding: 0.05em 0.25em; }
   table.sites .badge { font-size: 6.5pt; padding: 0 0.3em 0 0.1em; }
   table.sites .badge svg { width: 10px; height: 10px; }
-  table.sites col.site { width: 14%; } table.sites col.level { width: 11%; }
-  table.sites col.outlook { width: 43%; } table.sites col.changes { width: 16%; }
-  table.sites col.ages { width: 16%; } table.sites col.links { width: 0; visibility: collapse; }
+  table.sites col.site { width: 14%; } table.sites col.level { width: 14%; }
+  table.sites col.outlook { width: 37%; } table.sites col.changes { width: 17%; }
+  table.sites col.ages { width: 18%; } table.sites col.links { width: 0; visibility: collapse; }
   .more, .said, .site-id, .basis { display: none; }
-  .probs { font-size: 1em; color: inherit; }
+  .probs, .count { font-size: 1em; color: inherit; }
   .links { display: none; } .ages { white-space: normal; }
 }
 """
@@ -137,8 +137,12 @@ def _level_cell(site: Site, report: IssuedReport | None, summary: dict[str, Any]
     colour = level_colour(level) if report.level_rank is not None else INSUFFICIENT_COLOUR
     basis = summary.get("level_basis")
     said = {"lab": "from the lab's results", "outlook": "raised by the outlook"}.get(basis or "", "")
+    count = summary.get("last_count_cells_per_ml")
+    last = ("" if count is None else
+            f'<span class="count"><span class="said">last count </span>'
+            f'{e(cells(count, summary.get("last_count_censor")))}</span>')
     return (badge(report.level, scheme.role(report.level_rank), colour)
-            + (f'<span class="basis">{e(said)}</span>' if said else ""))
+            + (f'<span class="basis">{e(said)}</span>' if said else "") + last)
 
 
 def _outlook_cell(row: Row) -> str:
@@ -174,10 +178,8 @@ def _changes_cell(summary: dict[str, Any]) -> str:
 def _ages_cell(summary: dict[str, Any]) -> str:
     sample = summary.get("sample_age_days")
     weather = summary.get("weather_age_days")
-    count = summary.get("last_count_cells_per_ml")
-    sample_text = ("none" if sample is None else
-                   f"{duration(sample)} ({cells(count, summary.get('last_count_censor'))})")
-    weather_text = "none" if weather is None else duration(weather)
+    sample_text = "none" if sample is None else f"{duration(sample)} old"
+    weather_text = "none" if weather is None else f"{duration(weather)} old"
     return (f'<span class="ages">sample {e(sample_text)}</span><br>'
             f'<span class="ages">weather {e(weather_text)}</span>')
 
