@@ -10,6 +10,7 @@ import os
 from pathlib import Path
 
 import dask
+import pandas as pd
 import pytest
 
 from conftest import SISTER
@@ -227,3 +228,31 @@ def test_the_local_engine_without_dask_says_how_to_install_it(monkeypatch):
     monkeypatch.setattr(builtins, "__import__", no_dask)
     with pytest.raises(ComputeError, match=r"pip install 'cyanorisk\[dask\]'"):
         compute.open_engine(ComputeSettings(engine="local", workers=1))
+
+
+def test_backtests_spread_over_sites_and_seasons_give_the_one_site_backtests(tmp_path, two_sites,
+                                                                            local_engine):
+    from cyanorisk.pipeline import SitePipeline
+    from cyanorisk.pipeline.many import backtest_sites
+
+    config = load_config(two_sites.write_config(tmp_path))
+    spread = backtest_sites(config, "2022-2023", local_engine, progress=False)
+    assert list(spread) == [SITE, SISTER]
+    for site in config.sites:
+        alone = SitePipeline.of(config, site).backtest("2022-2023")
+        run = spread[site.id]
+        assert run.span == alone.span
+        pd.testing.assert_frame_equal(run.result.forecasts, alone.result.forecasts)
+        pd.testing.assert_frame_equal(run.result.overall, alone.result.overall)
+        pd.testing.assert_frame_equal(run.result.scores, alone.result.scores)
+
+
+def test_a_site_whose_backtest_fails_does_not_stop_the_others(tmp_path, two_sites):
+    from cyanorisk.errors import BacktestError
+    from cyanorisk.pipeline.many import backtest_sites
+
+    config = load_config(two_sites.write_config(tmp_path))
+    # the sister's data hold four seasons, the demo's eight: 2018 is the demo's only
+    runs = backtest_sites(config, "2018", SerialEngine(), progress=False)
+    assert runs[SITE].span == "2018-2018"
+    assert isinstance(runs[SISTER], BacktestError) and "the data hold seasons" in str(runs[SISTER])

@@ -98,14 +98,36 @@ def parse_seasons(text: str | None, available: Sequence[int]) -> list[int]:
     return chosen
 
 
+@dataclass
+class SeasonReplay:
+    """One season replayed: its forecasts (the rows of :attr:`BacktestResult.forecasts`), or
+    why it could not be (then the plain persistence rule stands in its rows)."""
+
+    season: int
+    forecasts: pd.DataFrame
+    not_replayed: str | None = None
+    family: str | None = None
+
+
 def walk_forward(spec: SiteSpec, table: pd.DataFrame, totals: pd.DataFrame, seasons: Iterable[int],
                  thresholds: Thresholds,
                  progress: Callable[[Iterable, int, str], Iterable] | None = None) -> BacktestResult:
-    """Run the walk-forward backtest of one site over ``seasons`` (season start years).
+    """Run the walk-forward backtest of one site over ``seasons`` (season start years), one
+    season after another (:func:`replay_season`, then :func:`combine`; the compute engine runs
+    the seasons of many sites side by side with the same two functions).
 
     At each season start the models are fitted exactly as ``train`` would fit them on what was
     known then, the choice of family and its calibration included (:func:`fit_models`)."""
     seasons = list(seasons)
+    loop = progress(seasons, len(seasons), "backtest") if progress else seasons
+    return combine(spec, totals, seasons, thresholds,
+                   [replay_season(spec, table, s, thresholds) for s in loop])
+
+
+def replay_season(spec: SiteSpec, table: pd.DataFrame, s: int,
+                  thresholds: Thresholds) -> SeasonReplay:
+    """Replay one season: fit on what was known before it started, forecast its every issue
+    day as the daily job would, beside the climatology and persistence baselines."""
     names = spec.levels
     h, horizons = spec.horizon_days, spec.horizons
     j_head, j_warn = horizons.index(h), horizons.index(spec.warn_horizon_days)
@@ -114,57 +136,67 @@ def walk_forward(spec: SiteSpec, table: pd.DataFrame, totals: pd.DataFrame, seas
     y = ordinal[h]
     issue_day = pd.to_datetime(X["issue_date"])
     season = season_of(X["issue_date"], spec.season_start_month)
-    parts, notes, families = [], [], {}
-    not_replayed: dict[int, str] = {}
-    loop = progress(seasons, len(seasons), "backtest") if progress else seasons
-    for s in loop:
-        start = pd.Timestamp(year=int(s), month=spec.season_start_month, day=1)
-        in_season = season == s
-        known_before = ((issue_day + pd.Timedelta(days=spec.outlook_days + spec.lab_delay_days))
-                        < start).to_numpy()
-        part = pd.DataFrame({"site_id": spec.site_id, "season": s,
-                             "issue_date": X.loc[in_season, "issue_date"].to_numpy()})
-        history = int((known_before & ~np.isnan(y)).sum())
-        fitted = None
-        why = history_shortfall(history)
-        if why is None:
-            try:
-                fitted = fit_models(spec, table[known_before], keep_forecasts=False)
-            except (ValueError, RuntimeError) as exc:
-                why = f"the model could not be fitted on the data known before it ({exc})"
-        n = int(in_season.sum())
-        p = np.full((n, len(names), len(horizons)), np.nan)
-        c = np.full((n, len(names), len(horizons)), np.nan)
-        if why is not None:
-            # no history to learn persistence from: the plain rule (the last level stays)
-            per = PersistenceModel(names, horizons).fit().predict(X.loc[in_season, "last_level"])
-            not_replayed[int(s)] = why
-            notes.append(f"season {s}: not replayed, {why}")
-        else:
-            families[int(s)] = fitted.choice["family"]
-            p = fitted.outlook.predict(X[in_season])
-            per = fitted.persistence.predict(X.loc[in_season, "last_level"])
-            c = climatology_by_horizon(spec, X[known_before], ordinal, known_before,
-                                       X.loc[in_season, "issue_date"])
-        for k, name in enumerate(names):
-            block = part.copy()
-            block["level"] = name
-            block["horizon_days"] = h
-            block["probability"] = p[:, k, j_head]
-            block["outcome"] = o[in_season, k, j_head]
-            block["climatology"] = c[:, k, j_head]
-            block["persistence"] = per[:, k, j_head]
-            block["warn_horizon_days"] = spec.warn_horizon_days
-            block["warn_probability"] = p[:, k, j_warn]
-            block["warn_outcome"] = o[in_season, k, j_warn]
-            block["warned"] = warned_flags(block["warn_probability"], thresholds.at(name))
-            block["family"] = families.get(int(s), "")
-            for j, g in enumerate(horizons):
-                block[f"probability_{g}d"] = p[:, k, j]
-                block[f"outcome_{g}d"] = o[in_season, k, j]
-                block[f"climatology_{g}d"] = c[:, k, j]
-                block[f"persistence_{g}d"] = per[:, k, j]
-            parts.append(block)
+    start = pd.Timestamp(year=int(s), month=spec.season_start_month, day=1)
+    in_season = np.asarray(season == s)
+    known_before = np.asarray((issue_day + pd.Timedelta(days=spec.outlook_days + spec.lab_delay_days))
+                              < start)
+    part = pd.DataFrame({"site_id": spec.site_id, "season": s,
+                         "issue_date": X.loc[in_season, "issue_date"].to_numpy()})
+    history = int((known_before & ~np.isnan(y)).sum())
+    fitted = None
+    why = history_shortfall(history)
+    if why is None:
+        try:
+            fitted = fit_models(spec, table[known_before], keep_forecasts=False)
+        except (ValueError, RuntimeError) as exc:
+            why = f"the model could not be fitted on the data known before it ({exc})"
+    n = int(in_season.sum())
+    p = np.full((n, len(names), len(horizons)), np.nan)
+    c = np.full((n, len(names), len(horizons)), np.nan)
+    family = None
+    if why is not None:
+        # no history to learn persistence from: the plain rule (the last level stays)
+        per = PersistenceModel(names, horizons).fit().predict(X.loc[in_season, "last_level"])
+    else:
+        family = fitted.choice["family"]
+        p = fitted.outlook.predict(X[in_season])
+        per = fitted.persistence.predict(X.loc[in_season, "last_level"])
+        c = climatology_by_horizon(spec, X[known_before], ordinal, known_before,
+                                   X.loc[in_season, "issue_date"])
+    blocks = []
+    for k, name in enumerate(names):
+        block = part.copy()
+        block["level"] = name
+        block["horizon_days"] = h
+        block["probability"] = p[:, k, j_head]
+        block["outcome"] = o[in_season, k, j_head]
+        block["climatology"] = c[:, k, j_head]
+        block["persistence"] = per[:, k, j_head]
+        block["warn_horizon_days"] = spec.warn_horizon_days
+        block["warn_probability"] = p[:, k, j_warn]
+        block["warn_outcome"] = o[in_season, k, j_warn]
+        block["warned"] = warned_flags(block["warn_probability"], thresholds.at(name))
+        block["family"] = family or ""
+        for j, g in enumerate(horizons):
+            block[f"probability_{g}d"] = p[:, k, j]
+            block[f"outcome_{g}d"] = o[in_season, k, j]
+            block[f"climatology_{g}d"] = c[:, k, j]
+            block[f"persistence_{g}d"] = per[:, k, j]
+        blocks.append(block)
+    return SeasonReplay(int(s), pd.concat(blocks, ignore_index=True), why, family)
+
+
+def combine(spec: SiteSpec, totals: pd.DataFrame, seasons: Sequence[int], thresholds: Thresholds,
+            replays: Iterable[SeasonReplay]) -> BacktestResult:
+    """The backtest of a site from its seasons' replays (in any order): forecasts in season
+    order, scores per season and overall, by horizon, reliability."""
+    names = spec.levels
+    by_season = {r.season: r for r in replays}
+    ordered = [by_season[int(s)] for s in seasons if int(s) in by_season]
+    parts = [r.forecasts for r in ordered]
+    not_replayed = {r.season: r.not_replayed for r in ordered if r.not_replayed is not None}
+    notes = [f"season {s}: not replayed, {why}" for s, why in not_replayed.items()]
+    families = {r.season: r.family for r in ordered if r.family is not None}
     forecasts = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame()
     exceedances = first_exceedances(totals, spec, seasons)
     scores = season_scores(forecasts, exceedances, names, thresholds, not_replayed)
@@ -174,7 +206,7 @@ def walk_forward(spec: SiteSpec, table: pd.DataFrame, totals: pd.DataFrame, seas
     if len(overall) and len(scores):
         overall = overall.merge(median_leads(scores), on=["level", "source"], how="left")
     result = BacktestResult(forecasts, scores, overall, exceedances, notes, not_replayed)
-    result.horizon_scores = horizon_scores(replayed, names, horizons)
+    result.horizon_scores = horizon_scores(replayed, names, horizons=spec.horizons)
     result.reliability = reliability(replayed, names)
     result.families = families
     return result

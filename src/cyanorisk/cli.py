@@ -171,19 +171,42 @@ def cmd_report(args: argparse.Namespace) -> int:
     return status
 
 
+def _backtests(config: Config, seasons: str | None, bar: bool) -> dict:
+    """Every site's backtest, spread over the engine of ``[compute]``: site id -> its run, or
+    the exception that stopped it."""
+    from cyanorisk.compute import open_engine
+    from cyanorisk.pipeline.many import backtest_sites
+
+    with open_engine(config.compute) as engine:
+        return backtest_sites(config, seasons, engine, progress=bar, stream=sys.stderr)
+
+
+def _given(run):
+    """A site's backtest run, or raise what stopped it (for :func:`each_site` to tell)."""
+    if isinstance(run, Exception):
+        if isinstance(run, CyanoriskError):
+            raise run
+        from cyanorisk.errors import InsufficientDataError
+
+        raise InsufficientDataError(f"the backtest failed: {type(run).__name__}: {run}")
+    return run
+
+
 def cmd_backtest(args: argparse.Namespace) -> int:
-    """Walk-forward backtest of each site over past seasons; write forecasts, scores, page."""
+    """Walk-forward backtest of each site over past seasons; write forecasts, scores, page.
+    Sites and seasons are spread over the engine of ``[compute]``."""
     out: list | None = [] if args.json else None
-    status = each_site(_config(args), lambda p: _backtest(p, args.seasons, out))
+    config = _config(args)
+    runs = _backtests(config, args.seasons, out is None)
+    status = each_site(config, lambda p: _backtest(p, _given(runs[p.spec.site_id]), out))
     if out is not None:
         _print_json(out)
     return status
 
 
-def _backtest(pipeline: SitePipeline, seasons: str | None, out: list | None = None) -> None:
+def _backtest(pipeline: SitePipeline, run, out: list | None = None) -> None:
     from cyanorisk.report.backtest_page import season_sentences
 
-    run = pipeline.backtest(seasons, progress if out is None else None)
     paths = pipeline.write_backtest(run)
     result = run.result
     if out is not None:
@@ -230,7 +253,9 @@ def cmd_tune(args: argparse.Namespace) -> int:
     if (args.miss_cost is None) == (args.target_hit_rate is None):
         raise ConfigError(args.config, None, "give either --miss-cost or --target-hit-rate")
     out: list | None = [] if args.json else None
-    status = each_site(_config(args), lambda p: _tune(p, args, out))
+    config = _config(args)
+    runs = _backtests(config, args.seasons, out is None)
+    status = each_site(config, lambda p: _tune(p, _given(runs[p.spec.site_id]), args, out))
     if out is not None:
         _print_json(out)
     return status
@@ -244,8 +269,7 @@ def _accept(pipeline: SitePipeline, when: str) -> None:
     print(f"  wrote {path}")
 
 
-def _tune(pipeline: SitePipeline, args: argparse.Namespace, out: list | None = None) -> None:
-    run = pipeline.backtest(args.seasons, progress if out is None else None)
+def _tune(pipeline: SitePipeline, run, args: argparse.Namespace, out: list | None = None) -> None:
     choices, problems = pipeline.tune(run, miss_cost=args.miss_cost,
                                       target_hit_rate=args.target_hit_rate)
     if out is not None:

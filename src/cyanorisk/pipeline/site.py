@@ -75,6 +75,37 @@ class BacktestRun:
     """The site's per-sample totals (for the season timelines)."""
 
 
+@dataclass
+class BacktestInputs:
+    """What a site's backtest needs, as one value (a compute task's result)."""
+
+    spec: SiteSpec
+    table: pd.DataFrame
+    totals: pd.DataFrame
+    seasons: list[int]
+    thresholds: Thresholds
+
+    def run(self, result: BacktestResult) -> BacktestRun:
+        """The backtest run of its result.
+
+        Raises
+        ------
+        NothingToReplayError
+            When no season could be replayed, saying why for each.
+        """
+        replayed = result.replayed
+        if not replayed:
+            raise NothingToReplayError("no season could be replayed: " + "; ".join(
+                f"season {s}: {why}" for s, why in sorted(result.not_replayed.items())))
+        return BacktestRun(result, f"{replayed[0]}-{replayed[-1]}", self.totals)
+
+
+def backtest_inputs(site: Site, workspace: SiteWorkspace, config_path: str,
+                    seasons_text: str | None) -> BacktestInputs:
+    """A site's backtest inputs (a compute task: clean data, training table, seasons)."""
+    return SitePipeline(site, workspace, config_path).backtest_inputs(seasons_text)
+
+
 class SitePipeline:
     """Everything cyanorisk does for one site, over its :class:`SiteWorkspace`.
 
@@ -236,20 +267,20 @@ class SitePipeline:
 
     # 5. backtest and tune ----------------------------------------------------------------------
 
-    def backtest(self, seasons_text: str | None = None,
-                 progress: Progress | None = None) -> BacktestRun:
-        """The walk-forward backtest over the requested seasons ('2015-2022'; default: all but
-        the first)."""
+    def backtest_inputs(self, seasons_text: str | None = None) -> BacktestInputs:
+        """What a backtest over the requested seasons ('2015-2022'; default: all but the
+        first) needs: the training table, the per-sample totals, the seasons, the thresholds."""
         table = self.training_table()
         available = sorted(set(season_of(table["issue_date"], self.spec.season_start_month).tolist()))
         seasons = parse_seasons(seasons_text, available)
-        totals = self.clean().totals
-        result = walk_forward(self.spec, table, totals, seasons, self.thresholds(), progress)
-        replayed = result.replayed
-        if not replayed:
-            raise NothingToReplayError("no season could be replayed: " + "; ".join(
-                f"season {s}: {why}" for s, why in sorted(result.not_replayed.items())))
-        return BacktestRun(result, f"{replayed[0]}-{replayed[-1]}", totals)
+        return BacktestInputs(self.spec, table, self.clean().totals, seasons, self.thresholds())
+
+    def backtest(self, seasons_text: str | None = None,
+                 progress: Progress | None = None) -> BacktestRun:
+        """The walk-forward backtest over the requested seasons ('2015-2022'; default: all but
+        the first), in this process."""
+        b = self.backtest_inputs(seasons_text)
+        return b.run(walk_forward(b.spec, b.table, b.totals, b.seasons, b.thresholds, progress))
 
     def write_backtest(self, run: BacktestRun) -> list[Path]:
         """Forecasts (CSV), scores per season and overall (CSV) and the page, as a group."""
