@@ -292,7 +292,7 @@ class SitePipeline:
         folder = self.workspace.backtest_folder(run.span)
         result = run.result
         page = render_backtest(spec.name, result, _season_counts(spec, run.totals), spec.levels,
-                               cells, run.span)
+                               cells, run.span, dict(self.thresholds().warn_at))
         by_horizon = [f"{kind}_{h}d" for h in spec.horizons for kind in ("probability", "outcome")]
         forecasts = result.forecasts[["site_id", "season", "issue_date", "level", "horizon_days",
                                       "probability", "outcome", "climatology", "persistence",

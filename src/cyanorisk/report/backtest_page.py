@@ -247,11 +247,26 @@ def _horizon_table(result, names: list[str]) -> str:
             f"{head}</tr>" + "".join(rows) + "</table></div>")
 
 
+EXPLORER_CSS = """
+.explorer-level { border: 1px solid #bbb; border-radius: 6px; padding: 0.4em 0.8em; margin: 0.5em 0;
+  break-inside: avoid; }
+.explorer-level input[type=range] { width: min(30em, 100%); }
+.explorer-level output { font-weight: 700; }
+table.explorer-counts, table.explorer-leads { width: auto; }
+@media print { .explorer-level input[type=range] { display: none; } }
+"""
+
+
 def render_backtest(site_name: str, result, counts: pd.DataFrame, names: list[str],
-                    cells: list[tuple[str, float]], seasons_text: str) -> str:
+                    cells: list[tuple[str, float]], seasons_text: str,
+                    warn_at: dict[str, float] | None = None) -> str:
     """The backtest page: the seasons in plain words, skill with bootstrap intervals, warnings
-    per season, ROC and reliability, season timelines."""
+    per season, the threshold explorer (sliders start at ``warn_at``, the thresholds in
+    force), ROC and reliability, season timelines."""
+    from cyanorisk.report.explorer import explorer_data, explorer_section
+
     e = html.escape
+    explorer = explorer_section(explorer_data(result, names), warn_at or {})
     figs = []
     for level in names:
         fig, axes = new_figure(9, 3.4, 1, 2)
@@ -273,7 +288,7 @@ def render_backtest(site_name: str, result, counts: pd.DataFrame, names: list[st
 <html lang="en"><head><meta charset="utf-8">
 <meta name="viewport" content="width=device-width, initial-scale=1">
 <title>{e(site_name)}: backtest {e(seasons_text)}</title>
-<style>{CSS}</style></head><body>
+<style>{CSS}{EXPLORER_CSS}</style></head><body>
 <h1>{e(site_name)}: how early and how reliably it would have warned, seasons {e(seasons_text)}</h1>
 <p class="sub">Each season was forecast by models fitted only on what was known before it
 started, issued every day as the daily report would have been, with the warning thresholds in
@@ -294,6 +309,7 @@ the season to meet the level (a warning raised by any horizon up to
 <section id="warnings"><h2>Warnings per season</h2>{_warnings_table(result, names)}
 <p class="small">Model family chosen at each season start, as <code>train</code> would have
 chosen it: {e(_families_text(result))}.</p></section>
+{explorer}
 <section id="horizons"><h2>Skill by days ahead</h2>{_horizon_table(result, names)}
 <p class="small">Columns: the horizon in days. Skill: Brier skill score against the usual for the
 time of year and against persistence as a probability (how often the last result's level held
