@@ -37,6 +37,7 @@ bench: $(STAMP)
 	$(BIN)/python benchmarks/bench_cli.py
 	$(BIN)/python benchmarks/bench_faults.py
 	$(BIN)/python benchmarks/bench_skill.py
+	$(BIN)/python benchmarks/bench_sites.py
 
 clean:
 	rm -rf $(VENV) build src/*.egg-info .pytest_cache .ruff_cache

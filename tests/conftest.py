@@ -86,7 +86,7 @@ def demo_site(tmp_path_factory) -> DemoSite:
 SISTER = "kestrel"
 """A second demo-like site (another seed), for the tests of many sites."""
 SISTER_NAME = "Kestrel Weir Pool"
-SISTER_YEARS = 4
+SISTER_YEARS = 2
 
 
 @dataclass

@@ -62,11 +62,13 @@ def backtest(tmp_path_factory, demo_site):
 
 
 def slide_to(browser, slider, value: int) -> None:
-    """Move a range slider with the keyboard: Home (to 1), then the right arrow."""
+    """Move a range slider with the keyboard, as a person would: Home (to 1) or End (to 99),
+    then the arrow keys (sent in one go)."""
     slider.click()
-    slider.send_keys(Keys.HOME)
-    for _ in range(value - 1):
-        slider.send_keys(Keys.ARROW_RIGHT)
+    if value <= 50:
+        slider.send_keys(Keys.HOME + Keys.ARROW_RIGHT * (value - 1))
+    else:
+        slider.send_keys(Keys.END + Keys.ARROW_LEFT * (99 - value))
     assert slider.get_attribute("value") == str(value)
 
 
@@ -103,7 +105,7 @@ def lead_words(lead: float) -> str:
     return f"{days} day{'' if days == 1 else 's'} {'ahead' if lead > 0 else 'late'}"
 
 
-@pytest.mark.parametrize("value", [12, 47, 83])
+@pytest.mark.parametrize("value", [12, 83])
 def test_the_explorer_gives_tunes_numbers_for_the_threshold_it_is_moved_to(browser, backtest,
                                                                           value):
     run, page = backtest
@@ -143,9 +145,16 @@ def test_the_explorer_starts_at_the_thresholds_in_force(browser, backtest, demo_
         assert panel.find_element(By.CSS_SELECTOR, ".threshold").text == f"{warn_at[level]:.2f}"
 
 
-def test_the_overview_rows_and_links_work_in_a_browser(browser, tmp_path, two_sites):
-    config = load_config(two_sites.write_config(tmp_path))
+@pytest.fixture(scope="module")
+def overview(tmp_path_factory, two_sites):
+    """Two sites after a daily run: their configuration."""
+    config = load_config(two_sites.write_config(tmp_path_factory.mktemp("overview")))
     run_daily(RISE_DAY, config, clock=Clock())
+    return config
+
+
+def test_the_overview_rows_and_links_work_in_a_browser(browser, overview):
+    config = overview
     browser.get((config.reports_dir / "index.html").as_uri())
     rows = browser.find_elements(By.CSS_SELECTOR, "tr[data-site]")
     assert sorted(r.get_attribute("data-site") for r in rows) == sorted([SITE, SISTER])
@@ -162,9 +171,8 @@ def test_the_overview_rows_and_links_work_in_a_browser(browser, tmp_path, two_si
         assert browser.find_elements(By.CSS_SELECTOR, f'tr[data-day="{RISE_DAY}"]')
 
 
-def test_the_overview_reads_on_a_phone(browser, tmp_path, two_sites):
-    config = load_config(two_sites.write_config(tmp_path))
-    run_daily(RISE_DAY, config, clock=Clock())
+def test_the_overview_reads_on_a_phone(browser, overview):
+    config = overview
     browser.set_window_size(390, 844)
     try:
         browser.get((config.reports_dir / "index.html").as_uri())

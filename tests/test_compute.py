@@ -160,10 +160,15 @@ def test_an_engine_that_cannot_start_leaves_the_run_to_this_process(tmp_path, tw
 
     monkeypatch.setattr(jobs, "open_engine", refuse)
     config = load_config(two_sites.write_config(tmp_path))
-    result = run_daily(RISE_DAY, config, clock=Clock())
+    lines = io.StringIO()
+    result = run_daily(RISE_DAY, config, clock=Clock(),
+                       progress=Progress(2, "run", stream=lines, bar=False))
     assert [o.action for o in result.sites] == ["issued", "issued"] and result.status == "ok"
     with Store(config.store_url) as store:
         assert "ran one after another in this process" in store.runs()[-1]["error"]
+    # and the progress: a line per site as it is filed
+    assert lines.getvalue().splitlines() == [f"run: {SITE} issued (1/2)",
+                                             f"run: {SISTER} issued (2/2)"]
 
 
 def test_run_all_keeps_a_window_and_yields_every_task():
@@ -185,13 +190,6 @@ def test_progress_is_a_bar_on_a_terminal_and_lines_otherwise():
     p.step("a")
     p.step("b")
     assert bar.getvalue().endswith("\rbacktest [" + "#" * 30 + "] 2/2\n")
-
-
-def test_the_daily_job_reports_progress_per_site(tmp_path, two_sites):
-    config = load_config(two_sites.write_config(tmp_path))
-    lines = io.StringIO()
-    run_daily(RISE_DAY, config, clock=Clock(), progress=Progress(2, "run", stream=lines, bar=False))
-    assert lines.getvalue().splitlines() == [f"run: {SITE} issued (1/2)", f"run: {SISTER} issued (2/2)"]
 
 
 @pytest.mark.parametrize(("table", "key", "fragment"), [
@@ -236,12 +234,12 @@ def test_backtests_spread_over_sites_and_seasons_give_the_one_site_backtests(tmp
     from cyanorisk.pipeline.many import backtest_sites
 
     config = load_config(two_sites.write_config(tmp_path))
-    spread = backtest_sites(config, "2022-2023", local_engine, progress=False)
+    spread = backtest_sites(config, "2024", local_engine, progress=False)
     assert list(spread) == [SITE, SISTER]
     for site in config.sites:
-        alone = SitePipeline.of(config, site).backtest("2022-2023")
+        alone = SitePipeline.of(config, site).backtest("2024")
         run = spread[site.id]
-        assert run.span == alone.span
+        assert run.span == alone.span == "2024-2024"
         pd.testing.assert_frame_equal(run.result.forecasts, alone.result.forecasts)
         pd.testing.assert_frame_equal(run.result.overall, alone.result.overall)
         pd.testing.assert_frame_equal(run.result.scores, alone.result.scores)

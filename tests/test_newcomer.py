@@ -164,7 +164,11 @@ def test_the_commands_succeed_in_order(newcomer, ran):
     folder = newcomer[0]
     for command, status, out, err in ran:
         assert status == 0, (command, out[-2000:], err)
-        assert err == ""
+        # off a terminal the only thing on stderr is a progress line per site (or site-season)
+        assert all(re.fullmatch(r"(backtest|run \S+): \S+ \w+ \(\d+/\d+\)", line)
+                   for line in err.splitlines()), (command, err)
+    backtest_err = ran[3][3]
+    assert backtest_err.splitlines()[-1].endswith("(2/2)")  # two seasons of one site
     check_out = ran[0][2]
     assert "verdict: ready" in check_out and "can be replayed (2022 to 2023)" in check_out
     assert "backtest of seasons 2022-2023" in ran[3][2]

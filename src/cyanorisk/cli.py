@@ -9,7 +9,7 @@ command runs, so ``--help`` and ``--version`` answer at once.
 from __future__ import annotations
 
 import sys
-from collections.abc import Callable, Iterable, Iterator
+from collections.abc import Callable
 
 from cyanorisk.errors import EXIT_DATA, EXIT_INSUFFICIENT, ConfigError, CyanoriskError, OptionError
 from cyanorisk.version import __version__
@@ -20,19 +20,6 @@ if TYPE_CHECKING:
 
     from cyanorisk.config import Config
     from cyanorisk.pipeline import SitePipeline
-
-
-def progress(items: Iterable, total: int, label: str) -> Iterator:
-    """Yield ``items`` while drawing a progress bar on stderr (only on a terminal)."""
-    show = sys.stderr.isatty()
-    for i, item in enumerate(items, start=1):
-        if show:
-            done = int(30 * (i - 1) / max(total, 1))
-            sys.stderr.write(f"\r{label} [{'#' * done}{'.' * (30 - done)}] {i - 1}/{total}")
-            sys.stderr.flush()
-        yield item
-    if show:
-        sys.stderr.write(f"\r{label} [{'#' * 30}] {total}/{total}\n")
 
 
 def _config(args: argparse.Namespace, check_files: bool = True) -> Config:
@@ -68,18 +55,22 @@ def each_site(config: Config, work: Callable[[SitePipeline], int | None], label:
     insufficient-data report)."""
     from contextlib import nullcontext
 
+    from cyanorisk.compute import Progress
     from cyanorisk.pipeline import SitePipeline
     from cyanorisk.service.locks import site_lock
 
     statuses = [0]
-    sites = config.sites
-    for site in progress(sites, len(sites), label) if label else sites:
+    bar = Progress(len(config.sites), label, stream=sys.stderr) \
+        if label and sys.stderr.isatty() else None
+    for site in config.sites:
         try:
             with site_lock(config.data_dir, site.id) if lock else nullcontext():
                 statuses.append(work(SitePipeline.of(config, site)) or 0)
         except CyanoriskError as exc:
             print(f"cyanorisk: {exc}", file=sys.stderr)
             statuses.append(exc.exit_status)
+        if bar is not None:
+            bar.step(site.id)
     return worst(statuses)
 
 
@@ -459,7 +450,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
     return worst([status, _demo_days(config)])
 
 
-DEMO_DAYS = 7
+DEMO_DAYS = 5
 """Days the demo runs the daily job for (the last of the record and those before it), so that
 the overview and the history pages have something to show."""
 
@@ -485,7 +476,9 @@ def _demo_days(config: Config) -> int:
               f"for {days[0].date()} to {days[-1].date()}")
         for p in o.paths:
             print(f"  wrote {p}")
-    print(f"  overview of all sites: {config.reports_dir / 'index.html'}; each site's history: "
+    from cyanorisk.pipeline.workspace import overview_file
+
+    print(f"  overview of all sites: {overview_file(config.reports_dir)}; each site's history: "
           f"{config.reports_dir / '<site>' / 'history.html'}")
     return worst([EXIT_DATA if o.action == "failed" else
                   EXIT_INSUFFICIENT if o.status == STATUS_INSUFFICIENT else 0 for o in result.sites])

@@ -159,6 +159,8 @@ Engine = SerialEngine | DaskEngine
 
 def open_engine(settings: ComputeSettings) -> Engine:
     """The engine the configuration's ``[compute]`` section asks for (use it in a with-block).
+    The 'local' engine starts its worker processes by spawning: a script that opens it must do
+    so under ``if __name__ == "__main__":``.
 
     Raises
     ------
@@ -176,6 +178,7 @@ def open_engine(settings: ComputeSettings) -> Engine:
         import os
 
         workers = settings.workers or os.cpu_count() or 1
+        saved = dict(os.environ)  # Dask sets thread limits for its workers in this process's too
         try:
             # on this machine only: the scheduler, the workers and the scheduler's small HTTP
             # server (health, metrics; no dashboard) listen on the loopback, on free ports
@@ -186,6 +189,9 @@ def open_engine(settings: ComputeSettings) -> Engine:
         except Exception as exc:  # e.g. no free port, no process may be started
             raise ComputeError(f"compute.engine = 'local': the LocalCluster of {workers} "
                                f"worker(s) cannot start ({exc})") from None
+        finally:
+            os.environ.clear()
+            os.environ.update(saved)
         return DaskEngine(Client(cluster, set_as_default=False), cluster, "local")
     try:
         client = Client(settings.address, timeout=30, set_as_default=False)

@@ -30,8 +30,11 @@ def backtest_sites(config: Config, seasons_text: str | None, engine: Engine,
             out[done.key] = done.error
         else:
             inputs[done.key] = done.value
+    # the later seasons first: they learn from more and take longer (the shortest come last,
+    # so that no worker is left alone with a long one at the end)
     seasons = [(f"{site_id}/{s}", (b.spec, b.table, s, b.thresholds))
                for site_id, b in inputs.items() for s in b.seasons]
+    seasons.sort(key=lambda task: -task[1][2])
     bar = Progress(len(seasons), "backtest", stream=stream) if progress else None
     replays: dict[str, list[SeasonReplay]] = {site_id: [] for site_id in inputs}
     for done in run_all(engine, replay_season, seasons, bar):

@@ -17,6 +17,9 @@ Layout (``<site>`` is the site's id)::
     reports_dir/<site>/<site>_<date>.html    the daily report (.json, .txt beside it)
     reports_dir/<site>/backtest_<seasons>/   forecasts.csv, scores, backtest.html
     reports_dir/<site>/tuning_<seasons>.png  the tuning trade-off plot
+    reports_dir/<site>/latest.html           the newest day's report (and latest.json)
+    reports_dir/<site>/history.html          every day and revision reported (and history.csv)
+    reports_dir/index.html                   the overview of all sites
 """
 
 from __future__ import annotations
@@ -184,8 +187,21 @@ class SiteWorkspace:
     def tuning_plot(self, span: str) -> Path:
         return self.report_folder / f"tuning_{span}.png"
 
+    def latest_file(self, suffix: str) -> Path:
+        """The newest day's report (``html`` or ``json``), a stable name beside the dated ones."""
+        return self.report_folder / f"latest.{suffix}"
+
+    def history_file(self, suffix: str) -> Path:
+        """The site's history of reports (``html`` or ``csv``)."""
+        return self.report_folder / f"history.{suffix}"
+
     def notice_file(self, name: str) -> Path:
         return self.outbox_dir / name
+
+
+def overview_file(reports_dir: Path) -> Path:
+    """The overview of all sites of an installation."""
+    return Path(reports_dir) / "index.html"
 
 
 def read_thresholds(path: Path, levels: list[str]) -> Thresholds:

@@ -315,7 +315,8 @@ def _stage(writers: dict[Path, Any], path: Path, data: bytes) -> None:
 def write_overview(config: Config, store: Store) -> list[Path]:
     """Rewrite the overview, each site's latest page and its history from the store; the
     files written (those whose content changed)."""
-    reports_dir = Path(config.reports_dir)
+    from cyanorisk.pipeline.workspace import SiteWorkspace, overview_file
+
     by_site: dict[str, list[IssuedReport]] = {s.id: [] for s in config.sites}
     for r in store.reports():
         if r.site_id in by_site:
@@ -327,7 +328,7 @@ def write_overview(config: Config, store: Store) -> list[Path]:
     for site in config.sites:
         reports = sorted(by_site[site.id], key=lambda r: (r.as_of, r.revision))
         latest = reports[-1] if reports else None
-        folder = reports_dir / site.id
+        ws = SiteWorkspace.of(config, site.id)
         rows.append(Row(site, latest, _summary(latest),
                         latest is not None and latest.as_of == latest_day))
         if latest is None:
@@ -335,12 +336,12 @@ def write_overview(config: Config, store: Store) -> list[Path]:
         for suffix in ("html", "json"):
             source = next((Path(p) for p in latest.paths if p.endswith(f".{suffix}")), None)
             if source is not None and source.exists():
-                _stage(writers, folder / f"latest.{suffix}", source.read_bytes())
+                _stage(writers, ws.latest_file(suffix), source.read_bytes())
         history = history_rows(site, reports)
-        _stage(writers, folder / "history.csv", history_csv(site, history).encode("utf-8"))
-        _stage(writers, folder / "history.html", history_html(site, history).encode("utf-8"))
+        _stage(writers, ws.history_file("csv"), history_csv(site, history).encode("utf-8"))
+        _stage(writers, ws.history_file("html"), history_html(site, history).encode("utf-8"))
     rows.sort(key=Row.sort_key)
     title = config.sites[0].spec.name if len(config.sites) == 1 else "All sites"
-    _stage(writers, reports_dir / "index.html",
+    _stage(writers, overview_file(config.reports_dir),
            overview_html(rows, title, latest_day).encode("utf-8"))
     return write_group(writers) if writers else []

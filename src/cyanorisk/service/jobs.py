@@ -475,7 +475,9 @@ def run_daily(as_of: str | pd.Timestamp, config: Config, *, clock: Clock,
         run_id = store.start_run(day, now, site_id=single)
         today = pd.Timestamp(now).date()
         notes: list[str] = []
-        if engine is None:
+        if engine is None and len(config.sites) == 1:
+            engine = SerialEngine()  # nothing to spread (the service runs a site at a time)
+        elif engine is None:
             try:
                 engine = open_engine(config.compute)
             except ComputeError as exc:  # the reports matter more than the speed
