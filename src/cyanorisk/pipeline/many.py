@@ -7,9 +7,9 @@ from __future__ import annotations
 from typing import TextIO
 
 from cyanorisk.backtest import SeasonReplay, combine, replay_season
-from cyanorisk.compute import Engine, Progress, run_all
+from cyanorisk.compute import Engine, Progress, Ticket
 from cyanorisk.config import Config
-from cyanorisk.errors import CyanoriskError
+from cyanorisk.errors import CyanoriskError, WorkerLostError
 from cyanorisk.pipeline.site import BacktestInputs, BacktestRun, backtest_inputs
 from cyanorisk.pipeline.workspace import SiteWorkspace
 
@@ -17,32 +17,54 @@ from cyanorisk.pipeline.workspace import SiteWorkspace
 def backtest_sites(config: Config, seasons_text: str | None, engine: Engine,
                    progress: bool = True,
                    stream: TextIO | None = None) -> dict[str, BacktestRun | Exception]:
-    """Each site's backtest over the requested seasons: first every site's inputs, then every
-    site-season, spread over ``engine``. A site that fails gets its exception in place of its
-    run; the others go on. ``progress``: a bar over the site-seasons on a terminal, a line
-    each otherwise (on ``stream``, or logged)."""
+    """Each site's backtest over the requested seasons, spread over ``engine``: every site's
+    inputs, and each site's seasons as soon as its inputs are in. A site that fails gets its
+    exception in place of its run; the others go on. ``progress``: a bar over the
+    site-seasons on a terminal, a line each otherwise (on ``stream``, or logged)."""
     out: dict[str, BacktestRun | Exception] = {}
     inputs: dict[str, BacktestInputs] = {}
-    tasks = [(s.id, (s, SiteWorkspace.of(config, s.id), config.path, seasons_text))
-             for s in config.sites]
-    for done in run_all(engine, backtest_inputs, tasks):
-        if done.error is not None:
-            out[done.key] = done.error
+    replays: dict[str, list[SeasonReplay]] = {}
+    bar = None
+    total = 0
+    finished: list[tuple[str, str]] = []  # seasons done before the total was known
+    answered: set[str] = set()  # sites whose inputs came back (or failed)
+    # one stream: a site's seasons are handed out as soon as its inputs come back, the later
+    # seasons first (they learn from more and take longer), so no worker waits for the others
+    pending: list[Ticket] = []
+    for s in config.sites:
+        pending.append(engine.submit(f"{s.id}", backtest_inputs, s, SiteWorkspace.of(config, s.id),
+                                     config.path, seasons_text))
+    while pending:
+        ticket = engine.next_done(pending)
+        pending.remove(ticket)
+        site_id, _, season = ticket.key.partition("/")
+        if not season:
+            answered.add(site_id)
+        try:
+            value = ticket.result()
+        except WorkerLostError:
+            raise
+        except Exception as exc:  # this site's problem: the others go on
+            out.setdefault(site_id, exc)
+            if season:
+                finished.append((ticket.key, "failed"))
+            continue
+        if not season:
+            b = inputs[site_id] = value
+            replays[site_id] = []
+            total += len(b.seasons)
+            for s in sorted(b.seasons, reverse=True):
+                pending.append(engine.submit(f"{site_id}/{s}", replay_season, b.spec, b.table, s,
+                                             b.thresholds))
         else:
-            inputs[done.key] = done.value
-    # the later seasons first: they learn from more and take longer (the shortest come last,
-    # so that no worker is left alone with a long one at the end)
-    seasons = [(f"{site_id}/{s}", (b.spec, b.table, s, b.thresholds))
-               for site_id, b in inputs.items() for s in b.seasons]
-    seasons.sort(key=lambda task: -task[1][2])
-    bar = Progress(len(seasons), "backtest", stream=stream) if progress else None
-    replays: dict[str, list[SeasonReplay]] = {site_id: [] for site_id in inputs}
-    for done in run_all(engine, replay_season, seasons, bar):
-        site_id = done.key.split("/")[0]
-        if done.error is not None:
-            out.setdefault(site_id, done.error)
-        else:
-            replays[site_id].append(done.value)
+            replays[site_id].append(value)
+            finished.append((ticket.key, "done"))
+        if progress and bar is None and len(answered) == len(config.sites):
+            bar = Progress(total, "backtest", stream=stream)
+        if bar is not None:
+            for key, what in finished:
+                bar.step(key, what)
+            finished.clear()
     for site_id, b in inputs.items():
         if site_id in out:
             continue
