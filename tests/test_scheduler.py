@@ -488,3 +488,30 @@ def test_status_after_a_failed_day(tmp_path, demo_site, capsys):
                         r"no weather, last sample n/a old at issue", lines[0])
     assert re.fullmatch(rf"last run: {RUN_DAY} started \S+, status failed \(tallowbark: .+\)", lines[1])
 
+
+
+def test_sites_sharing_an_issue_time_run_in_one_job(tmp_path, two_sites, monkeypatch):
+    """Sites with the same issue time and zone are one job, so that their daily run is spread
+    over the compute engine; a missed job is recorded for each of its sites."""
+    from conftest import SISTER
+
+    path = two_sites.write_config(tmp_path)
+    config = load_config(path)
+    scheduler = BackgroundScheduler(timezone="UTC")
+    ids = add_jobs(scheduler, config, str(path), as_of="2024-11-30")
+    assert ids == [f"{JOB_PREFIX}{SITE}+{SISTER}"]
+    (job,) = scheduler.get_jobs()
+    assert job.args == (str(path), f"{SITE}+{SISTER}", "2024-11-30")
+    assert job.name == f"daily report: 2 sites ({SITE}+{SISTER})"
+    result = daily_job(*job.args)
+    assert [(o.site_id, o.action) for o in result.sites] == [(SITE, "issued"), (SISTER, "issued")]
+
+    added: list[tuple] = []
+    monkeypatch.setattr(scheduler, "add_listener", lambda callback, mask: added.append((callback, mask)))
+    add_listeners(scheduler, config)
+    ((listen, _),) = added
+    listen(JobExecutionEvent(EVENT_JOB_MISSED, job.id, "default",
+                             datetime(2024, 12, 5, 6, 0, tzinfo=MELBOURNE)))
+    with opened(config) as store:
+        missed = [(r["site_id"], r["status"]) for r in store.runs() if r["status"] == "missed"]
+    assert missed == [(SITE, "missed"), (SISTER, "missed")]

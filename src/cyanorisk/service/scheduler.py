@@ -46,10 +46,24 @@ def local_today(site: Site, now: datetime) -> str:
     return now.astimezone(ZoneInfo(site.timezone)).date().isoformat()
 
 
+SITES_JOINED = "+"
+"""Joins the ids of the sites one job runs (a character no site id holds)."""
+
+
+def site_groups(config: Config) -> list[list[Site]]:
+    """The sites by issue time and time zone, in configuration order: the sites of a group are
+    run by one job, spread over the compute engine."""
+    groups: dict[tuple[str, str], list[Site]] = {}
+    for site in config.sites:
+        groups.setdefault((site.drivers.issue_time, site.timezone), []).append(site)
+    return list(groups.values())
+
+
 def daily_job(config_path: str | None, site_id: str, as_of: str | None = None,
               now: Callable[[], datetime] | None = None) -> RunResult:
-    """One scheduled run: reload the configuration (new files are picked up), assess one site for
-    its local date, log one line."""
+    """One scheduled run: reload the configuration (new files are picked up), assess the job's
+    sites (``site_id``: one id, or several joined by '+', sharing an issue time and zone) for
+    their local date, log one line per site."""
     config = load_config(config_path)
     config = _only(config, site_id)
     site = config.sites[0]
@@ -68,7 +82,8 @@ def _now() -> datetime:
 def _only(config: Config, site_id: str) -> Config:
     from dataclasses import replace
 
-    return replace(config, sites=tuple(s for s in config.sites if s.id == site_id))
+    wanted = site_id.split(SITES_JOINED)
+    return replace(config, sites=tuple(s for s in config.sites if s.id in wanted))
 
 
 def missed_days(config: Config, site: Site, now: datetime, store: Store) -> list[str]:
@@ -96,24 +111,32 @@ def catch_up(config_path: str | None, now: datetime) -> list[RunResult]:
     """Run, once each, the days missed while the service was down."""
     config = load_config(config_path)
     with Store(config.store_url) as store:
-        plan = [(site.id, day) for site in config.sites for day in missed_days(config, site, now, store)]
+        missed = {site.id: missed_days(config, site, now, store) for site in config.sites}
+    plan = []  # per group of sites and day, those of the group that missed it
+    for group in site_groups(config):
+        for day in sorted({d for site in group for d in missed[site.id]}):
+            plan.append((SITES_JOINED.join(s.id for s in group if day in missed[s.id]), day))
     results = []
-    for site_id, day in plan:
-        log.info("catching up %s for %s", day, site_id)
-        results.append(daily_job(config_path, site_id, as_of=day))
+    for site_ids, day in plan:
+        log.info("catching up %s for %s", day, site_ids)
+        results.append(daily_job(config_path, site_ids, as_of=day))
     return results
 
 
 def add_jobs(scheduler: BaseScheduler, config: Config, config_path: str | None,
              every_seconds: float | None = None, as_of: str | None = None) -> list[str]:
-    """Add (or replace) one daily job per site. ``every_seconds`` replaces the daily trigger
-    by an interval, for trials."""
+    """Add (or replace) one daily job per group of sites sharing an issue time and zone (one
+    job per site when each has its own; the sites of a job are spread over the compute engine).
+    ``every_seconds`` replaces the daily trigger by an interval, for trials."""
     ids = []
     grace = int(config.service.misfire_grace_hours * 3600)
-    for site in config.sites:
+    for group in site_groups(config):
+        site = group[0]
+        site_ids = SITES_JOINED.join(s.id for s in group)
+        names = site.name if len(group) == 1 else f"{len(group)} sites ({site_ids})"
         trigger = (IntervalTrigger(seconds=every_seconds) if every_seconds else issue_trigger(site))
-        job = scheduler.add_job(daily_job, trigger, args=[config_path, site.id, as_of],
-                                id=JOB_PREFIX + site.id, name=f"daily report: {site.name}",
+        job = scheduler.add_job(daily_job, trigger, args=[config_path, site_ids, as_of],
+                                id=JOB_PREFIX + site_ids, name=f"daily report: {names}",
                                 replace_existing=True, coalesce=True, max_instances=1,
                                 misfire_grace_time=grace)
         ids.append(job.id)
@@ -123,22 +146,22 @@ def add_jobs(scheduler: BaseScheduler, config: Config, config_path: str | None,
 def add_listeners(scheduler: BaseScheduler, config: Config) -> None:
     """Record errors and missed runs in the store, and log every run."""
     def listen(event: JobExecutionEvent) -> None:
-        site_id = event.job_id.removeprefix(JOB_PREFIX)
         if event.code == EVENT_JOB_EXECUTED:
             return
         when = utc_clock()
         what = "missed" if event.code == EVENT_JOB_MISSED else "error"
         detail = (f"scheduled for {event.scheduled_run_time}" if event.code == EVENT_JOB_MISSED
                   else f"{type(event.exception).__name__}: {event.exception}")
-        log.error("%s %s: %s", site_id, what, detail)
-        scheduled = event.scheduled_run_time
-        try:  # the run was for the site's local date at its scheduled time
-            day = local_today(config.site(site_id), scheduled)
-        except KeyError:
-            day = str(scheduled.date())
-        with Store(config.store_url) as store:
-            run_id = store.start_run(day, when, site_id=site_id)
-            store.end_run(run_id, when, what, f"{site_id}: {detail}")
+        for site_id in event.job_id.removeprefix(JOB_PREFIX).split(SITES_JOINED):
+            log.error("%s %s: %s", site_id, what, detail)
+            scheduled = event.scheduled_run_time
+            try:  # the run was for the site's local date at its scheduled time
+                day = local_today(config.site(site_id), scheduled)
+            except KeyError:
+                day = str(scheduled.date())
+            with Store(config.store_url) as store:
+                run_id = store.start_run(day, when, site_id=site_id)
+                store.end_run(run_id, when, what, f"{site_id}: {detail}")
 
     scheduler.add_listener(listen, EVENT_JOB_ERROR | EVENT_JOB_MISSED | EVENT_JOB_EXECUTED)
 
