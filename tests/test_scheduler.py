@@ -515,3 +515,10 @@ def test_sites_sharing_an_issue_time_run_in_one_job(tmp_path, two_sites, monkeyp
     with opened(config) as store:
         missed = [(r["site_id"], r["status"]) for r in store.runs() if r["status"] == "missed"]
     assert missed == [(SITE, "missed"), (SISTER, "missed")]
+
+
+def test_a_job_whose_sites_left_the_configuration_says_so(demo_site):
+    from cyanorisk.errors import ConfigError
+
+    with pytest.raises(ConfigError, match="no site gone or away any more; restart the service"):
+        daily_job(str(demo_site.config_path), "gone+away", as_of="2024-11-30")

@@ -25,7 +25,7 @@ from apscheduler.triggers.cron import CronTrigger
 from apscheduler.triggers.interval import IntervalTrigger
 
 from cyanorisk.config import Config, Site, load_config
-from cyanorisk.errors import StoreError
+from cyanorisk.errors import ConfigError, StoreError
 from cyanorisk.service.jobs import RunResult, run_daily, utc_clock
 from cyanorisk.service.store import Store
 from cyanorisk.timeofday import parse_hhmm
@@ -64,8 +64,12 @@ def daily_job(config_path: str | None, site_id: str, as_of: str | None = None,
     """One scheduled run: reload the configuration (new files are picked up), assess the job's
     sites (``site_id``: one id, or several joined by '+', sharing an issue time and zone) for
     their local date, log one line per site."""
-    config = load_config(config_path)
-    config = _only(config, site_id)
+    loaded = load_config(config_path)
+    config = _only(loaded, site_id)
+    if not config.sites:  # the configuration changed under the service: restart it
+        raise ConfigError(loaded.path, "sites", f"no site {site_id.replace(SITES_JOINED, ' or ')} "
+                                                "any more; restart the service to schedule the "
+                                                "sites configured now")
     site = config.sites[0]
     day = as_of or local_today(site, (now or _now)())
     result = run_daily(day, config, clock=utc_clock)
