@@ -8,7 +8,6 @@ import dataclasses
 import html
 import os
 import re
-import subprocess
 
 import pytest
 
@@ -18,7 +17,7 @@ from cyanorisk.report.overview import HISTORY_COLUMNS, Row, overview_html, slug
 from cyanorisk.service.jobs import run_daily
 from cyanorisk.service.store import IssuedReport, Store
 from test_jobs import LOW_DAY, NEXT_DAY, RISE_DAY, SITE, THRESHOLDS, Clock
-from test_report import CHROMIUM
+from test_report import CHROMIUM, print_to_pdf
 
 ODD_NAME = "Weir <Pool> & Co's"
 """A site name that must be escaped everywhere it is shown."""
@@ -149,11 +148,7 @@ def test_thirty_sites_print_on_one_a4_page(ran, tmp_path):
     page = tmp_path / "index.html"
     page.write_text(overview_html(rows, "All sites", NEXT_DAY), encoding="utf-8")
     pdf = tmp_path / "index.pdf"
-    subprocess.run([CHROMIUM, "--headless", "--no-sandbox", "--disable-gpu", "--no-first-run",
-                    "--disable-background-networking", "--disable-component-update",
-                    "--disable-sync", f"--user-data-dir={tmp_path / 'profile'}",
-                    "--no-pdf-header-footer", f"--print-to-pdf={pdf}", page.as_uri()],
-                   check=True, capture_output=True, timeout=120)
+    print_to_pdf(page, pdf, tmp_path / "profile")
     reader = pypdf.PdfReader(pdf)
     assert len(reader.pages) == 1
     text = " ".join(reader.pages[0].extract_text().split())

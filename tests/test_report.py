@@ -41,6 +41,16 @@ from cyanorisk.training import season_of
 CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
 
 
+def print_to_pdf(page: Path, pdf: Path, profile: Path) -> None:
+    """Print a page to PDF with headless Chromium, as a browser's Print would (no header or
+    footer); ``profile`` is a throwaway user-data folder."""
+    subprocess.run([CHROMIUM, "--headless", "--no-sandbox", "--disable-gpu", "--no-first-run",
+                    "--disable-background-networking", "--disable-component-update",
+                    "--disable-sync", f"--user-data-dir={profile}",
+                    "--no-pdf-header-footer", f"--print-to-pdf={pdf}", page.as_uri()],
+                   check=True, capture_output=True, timeout=120)
+
+
 def assess_day(demo_site, day, *, totals=None, thresholds=None, spec=None, window_days=None):
     """The demo's assessment of a local day; ``window_days`` keeps only that much weather
     before the day (enough for the drivers' windows) to make a scan of many days quick."""
@@ -285,11 +295,7 @@ def test_the_first_printed_page_holds_the_level_the_action_and_who_decides(demo_
     page = tmp_path / "report.html"
     page.write_text(render_html(a), encoding="utf-8")
     pdf = tmp_path / "report.pdf"
-    subprocess.run([CHROMIUM, "--headless", "--no-sandbox", "--disable-gpu", "--no-first-run",
-                    "--disable-background-networking", "--disable-component-update",
-                    "--disable-sync", f"--user-data-dir={tmp_path / 'profile'}",
-                    "--no-pdf-header-footer", f"--print-to-pdf={pdf}", page.as_uri()],
-                   check=True, capture_output=True, timeout=120)
+    print_to_pdf(page, pdf, tmp_path / "profile")
     reader = pypdf.PdfReader(pdf)
     first = reader.pages[0]
     # A4 is 595 x 842 points (ISO 216)
