@@ -63,7 +63,7 @@ from cyanorisk.pipeline import SitePipeline, SiteWorkspace
 from cyanorisk.pipeline.clean import file_digest
 from cyanorisk.pipeline.site import RenderedReport, render_report
 from cyanorisk.report.document import report_summary
-from cyanorisk.service.history import previous_report
+from cyanorisk.service.history import as_previous
 from cyanorisk.service.locks import RunLock
 from cyanorisk.service.locks import site_lock as lock_of_site
 from cyanorisk.service.store import IssuedReport, Store
@@ -360,9 +360,9 @@ def _start(config: Config, site: Site, store: Store, day: str, clock: Clock,
                 return SiteOutcome(site.id, "unchanged", same_day.revision, same_day.status,
                                    same_day.level, "same inputs as the last revision",
                                    same_day.paths), None, ()
-        previous = same_day or store.latest_report(site.id, before=day)
+        before = store.latest_report(site.id, before=day)  # what 'what changed' compares with
         args = (site, pipeline.workspace, config.path, config.service, day, run_day, inputs, failure,
-                same_day, previous, previous_report(store, site.id, day))
+                same_day, same_day or before, as_previous(before))
         return None, _Claim(pipeline, locks, same_day), args
     except BaseException:
         locks.close()
@@ -386,7 +386,7 @@ def _finish(store: Store, claim: _Claim, done: Done, day: str, run_id: int,
             if same_day.status == STATUS_NONE:
                 return SiteOutcome(site_id, "failed", same_day.revision, STATUS_NONE, None,
                                    result.failure, same_day.paths)
-            since = _changes(same_day.inputs, result.inputs) if len(result.inputs) > 1 else []
+            since = _changes(same_day.inputs, result.inputs)
             after = f", after: {', '.join(since)}" if since else ""
             return SiteOutcome(site_id, "failed", same_day.revision, same_day.status,
                                same_day.level, f"{result.failure} (the report issued earlier for "
