@@ -149,10 +149,10 @@ def main() -> None:
         back_cfg.write_text(config_text(root, args.backtest_sites, pinned=False), encoding="utf-8")
         setup = time.perf_counter()
         with open_engine(ComputeSettings(engine="local", workers=2)) as engine:
-            made = [d.value for d in run_all(engine, generate, [
-                (site_id(i), (str(root / "demo_data"), i)) for i in range(n)])]
-            failed = [d.key for d in run_all(engine, train, [
-                (site_id(i), (str(serial_cfg), site_id(i))) for i in range(n)]) if d.error]
+            made = [d.value for d in run_all(engine, [
+                (site_id(i), generate, (str(root / "demo_data"), i)) for i in range(n)])]
+            failed = [d.key for d in run_all(engine, [
+                (site_id(i), train, (str(serial_cfg), site_id(i))) for i in range(n)]) if d.error]
         assert not failed, f"training failed for {failed}"
         first = run_daily(day(HELD_BACK_DAYS), load_config(local_cfg), clock=utc_clock)
         assert first.status == "ok", [(o.site_id, o.reason) for o in first.sites][:3]

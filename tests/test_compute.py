@@ -146,11 +146,11 @@ def test_a_killed_dask_worker_is_a_lost_worker():
     with dask.config.set({"distributed.scheduler.allowed-failures": 0}):
         with open_engine(ComputeSettings(engine="local", workers=1)) as engine:
             assert isinstance(engine, DaskEngine)
-            done = list(run_all(engine, divmod, [("fine", (7, 2)), ("zero", (1, 0))]))
+            done = list(run_all(engine, [("fine", divmod, (7, 2)), ("zero", divmod, (1, 0))]))
             assert {d.key: (d.value, type(d.error)) for d in done} == {
                 "fine": ((3, 1), type(None)), "zero": (None, ZeroDivisionError)}
             with pytest.raises(WorkerLostError, match="a worker was lost while running boom"):
-                list(run_all(engine, os._exit, [("boom", (1,))]))
+                list(run_all(engine, [("boom", os._exit, (1,))]))
 
 
 def test_an_engine_that_cannot_start_leaves_the_run_to_this_process(tmp_path, two_sites,
@@ -173,9 +173,17 @@ def test_an_engine_that_cannot_start_leaves_the_run_to_this_process(tmp_path, tw
 
 def test_run_all_keeps_a_window_and_yields_every_task():
     engine = SerialEngine()
-    done = list(run_all(engine, pow, [(str(i), (i, 2)) for i in range(5)], window=2))
+    done = list(run_all(engine, [(str(i), pow, (i, 2)) for i in range(5)], window=2))
     assert [(d.key, d.value) for d in done] == [(str(i), i * i) for i in range(5)]
     assert all(isinstance(d, Done) and d.error is None for d in done)
+
+
+def test_run_all_hands_out_what_a_task_leads_to_before_the_rest():
+    def then(done):
+        return [(f"{done.key}/sq", pow, (done.value, 2))] if "/" not in done.key else []
+
+    done = list(run_all(SerialEngine(), [("a", abs, (-2,)), ("b", abs, (-3,))], follow=then))
+    assert [(d.key, d.value) for d in done] == [("a", 2), ("a/sq", 4), ("b", 3), ("b/sq", 9)]
 
 
 def test_progress_is_a_bar_on_a_terminal_and_lines_otherwise():

@@ -66,6 +66,8 @@ class SerialEngine:
 
     name = "serial"
     workers = 1
+    window = 1
+    """Tasks handed out at a time: one, run when its result is asked for."""
 
     def submit(self, key: str, fn: Callable[..., Any], *args: Any) -> Ticket:
         return _Deferred(key, fn, args)
@@ -123,6 +125,11 @@ class DaskEngine:
             return max(1, len(self.client.scheduler_info(n_workers=-1)["workers"]))
         except Exception:  # a scheduler that does not answer: the next result will say so
             return 1
+
+    @property
+    def window(self) -> int:
+        """Tasks handed out at a time: two per worker, so that none waits for its next."""
+        return 2 * self.workers
 
     def submit(self, key: str, fn: Callable[..., Any], *args: Any) -> Ticket:
         return _Future(key, self.client.submit(fn, *args, pure=False, key=f"{fn.__name__}-{key}"))
@@ -210,26 +217,34 @@ class Done:
     error: Exception | None = None
 
 
-def run_all(engine: Engine, fn: Callable[..., Any], tasks: Iterable[tuple[str, tuple]],
-            progress: Progress | None = None, window: int | None = None) -> Iterator[Done]:
-    """Run ``fn(*args)`` for every (key, args) of ``tasks`` on ``engine``, at most ``window``
-    at a time (default: twice the workers), yielding each as it finishes. A task's own
-    exception comes back in :attr:`Done.error` and the others go on.
+Task = tuple[str, Callable[..., Any], tuple]
+"""A task: its key (a site id, or 'site/season'), the function and its arguments."""
+
+
+def run_all(engine: Engine, tasks: Iterable[Task], progress: Progress | None = None,
+            window: int | None = None,
+            follow: Callable[[Done], Iterable[Task]] | None = None) -> Iterator[Done]:
+    """Run every task of ``tasks`` (taken as room frees up: a generator may do its part just
+    before each is handed out) on ``engine``, at most ``window`` at a time (default: the
+    engine's), yielding each as it finishes. A task's own exception comes back in
+    :attr:`Done.error` and the others go on. ``follow`` gives, for a task done without error,
+    the tasks that come of it; they are handed out before the rest.
 
     Raises
     ------
     WorkerLostError
         When a worker or the cluster is lost (the tasks not yet finished are not yielded).
     """
-    window = window or 2 * engine.workers
+    window = window or engine.window
     todo = iter(tasks)
+    ready: list[Task] = []
     pending: list[Ticket] = []
     while True:
         while len(pending) < window:
-            nxt = next(todo, None)
+            nxt = ready.pop(0) if ready else next(todo, None)
             if nxt is None:
                 break
-            key, args = nxt
+            key, fn, args = nxt
             pending.append(engine.submit(key, fn, *args))
         if not pending:
             return
@@ -241,6 +256,8 @@ def run_all(engine: Engine, fn: Callable[..., Any], tasks: Iterable[tuple[str, t
             raise
         except Exception as exc:
             done = Done(ticket.key, error=exc)
+        if follow is not None and done.error is None:
+            ready.extend(follow(done))
         if progress is not None:
             progress.step(ticket.key, "failed" if done.error is not None else "done")
         yield done

@@ -7,9 +7,9 @@ from __future__ import annotations
 from typing import TextIO
 
 from cyanorisk.backtest import SeasonReplay, combine, replay_season
-from cyanorisk.compute import Engine, Progress, Ticket
+from cyanorisk.compute import Done, Engine, Progress, Task, run_all
 from cyanorisk.config import Config
-from cyanorisk.errors import CyanoriskError, WorkerLostError
+from cyanorisk.errors import CyanoriskError
 from cyanorisk.pipeline.site import BacktestInputs, BacktestRun, backtest_inputs
 from cyanorisk.pipeline.workspace import SiteWorkspace
 
@@ -28,37 +28,32 @@ def backtest_sites(config: Config, seasons_text: str | None, engine: Engine,
     total = 0
     finished: list[tuple[str, str]] = []  # seasons done before the total was known
     answered: set[str] = set()  # sites whose inputs came back (or failed)
+
+    def seasons_of(done: Done) -> list[Task]:
+        if "/" in done.key:
+            return []
+        b: BacktestInputs = done.value
+        return [(f"{done.key}/{s}", replay_season, (b.spec, b.table, s, b.thresholds))
+                for s in sorted(b.seasons, reverse=True)]
+
+    tasks = [(s.id, backtest_inputs, (s, SiteWorkspace.of(config, s.id), config.path, seasons_text))
+             for s in config.sites]
     # one stream: a site's seasons are handed out as soon as its inputs come back, the later
     # seasons first (they learn from more and take longer), so no worker waits for the others
-    pending: list[Ticket] = []
-    for s in config.sites:
-        pending.append(engine.submit(f"{s.id}", backtest_inputs, s, SiteWorkspace.of(config, s.id),
-                                     config.path, seasons_text))
-    while pending:
-        ticket = engine.next_done(pending)
-        pending.remove(ticket)
-        site_id, _, season = ticket.key.partition("/")
-        if not season:
-            answered.add(site_id)
-        try:
-            value = ticket.result()
-        except WorkerLostError:
-            raise
-        except Exception as exc:  # this site's problem: the others go on
-            out.setdefault(site_id, exc)
-            if season:
-                finished.append((ticket.key, "failed"))
-            continue
-        if not season:
-            b = inputs[site_id] = value
+    for done in run_all(engine, tasks, follow=seasons_of):
+        site_id, _, season = done.key.partition("/")
+        if done.error is not None:  # this site's problem: the others go on
+            out.setdefault(site_id, done.error)
+        elif not season:
+            b = inputs[site_id] = done.value
             replays[site_id] = []
             total += len(b.seasons)
-            for s in sorted(b.seasons, reverse=True):
-                pending.append(engine.submit(f"{site_id}/{s}", replay_season, b.spec, b.table, s,
-                                             b.thresholds))
         else:
-            replays[site_id].append(value)
-            finished.append((ticket.key, "done"))
+            replays[site_id].append(done.value)
+        if season:
+            finished.append((done.key, "failed" if done.error is not None else "done"))
+        else:
+            answered.add(site_id)
         if progress and bar is None and len(answered) == len(config.sites):
             bar = Progress(total, "backtest", stream=stream)
         if bar is not None:

@@ -41,7 +41,7 @@ from typing import Any
 import pandas as pd
 
 from cyanorisk.atomic import write_group
-from cyanorisk.compute import Done, Engine, Progress, SerialEngine, open_engine, run_all
+from cyanorisk.compute import Done, Engine, Progress, SerialEngine, Task, open_engine, run_all
 from cyanorisk.config import Config, ServiceSettings, Site
 from cyanorisk.errors import (
     ComputeError,
@@ -476,7 +476,7 @@ def run_daily(as_of: str | pd.Timestamp, config: Config, *, clock: Clock,
         today = pd.Timestamp(now).date()
         notes: list[str] = []
         if engine is None and len(config.sites) == 1:
-            engine = SerialEngine()  # nothing to spread (the service runs a site at a time)
+            engine = SerialEngine()  # one site: nothing to spread, no cluster to start
         elif engine is None:
             try:
                 engine = open_engine(config.compute)
@@ -490,7 +490,7 @@ def run_daily(as_of: str | pd.Timestamp, config: Config, *, clock: Clock,
             if progress is not None:
                 progress.step(outcome.site_id, outcome.action)
 
-        def tasks() -> Iterator[tuple[str, tuple]]:
+        def tasks() -> Iterator[Task]:
             for site in config.sites:
                 outcome, claim, args = _start(config, site, store, day, clock, today)
                 if outcome is not None:
@@ -498,12 +498,11 @@ def run_daily(as_of: str | pd.Timestamp, config: Config, *, clock: Clock,
                     continue
                 assert claim is not None
                 claims[site.id] = claim
-                yield site.id, args
+                yield site.id, assess_site, args
 
         lost = None
         try:
-            window = 1 if isinstance(engine, SerialEngine) else 2 * engine.workers
-            for done in run_all(engine, assess_site, tasks(), window=window):
+            for done in run_all(engine, tasks()):
                 settle(_finish(store, claims.pop(done.key), done, day, run_id, clock))
         except StoreError:
             raise
