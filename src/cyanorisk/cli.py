@@ -347,7 +347,10 @@ def cmd_run(args: argparse.Namespace) -> int:
         from cyanorisk.service.scheduler import _now, local_today
 
         as_of = local_today(config.sites[0], _now())
-    result = run_daily(as_of, config, clock=utc_clock, progress=_progress(config, f"run {as_of}"))
+    from cyanorisk.compute import Progress
+
+    bar = Progress(len(config.sites), f"run {as_of}", stream=sys.stderr)
+    result = run_daily(as_of, config, clock=utc_clock, progress=bar)
     if args.json:
         import dataclasses
 
@@ -363,13 +366,6 @@ def cmd_run(args: argparse.Namespace) -> int:
               "again to complete it", file=sys.stderr)
     return worst([EXIT_DATA if o.action in ("failed", "interrupted") else
                   EXIT_INSUFFICIENT if o.status == STATUS_INSUFFICIENT else 0 for o in result.sites])
-
-
-def _progress(config: Config, label: str, total: int | None = None):
-    """A bar over the sites on a terminal, one line per site on stderr otherwise."""
-    from cyanorisk.compute import Progress
-
-    return Progress(len(config.sites) if total is None else total, label, stream=sys.stderr)
 
 
 def cmd_check(args: argparse.Namespace) -> int:
