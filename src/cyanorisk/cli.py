@@ -177,9 +177,10 @@ def _given(run):
     if isinstance(run, Exception):
         if isinstance(run, CyanoriskError):
             raise run
-        from cyanorisk.errors import InsufficientDataError
+        from cyanorisk.errors import BacktestError
 
-        raise InsufficientDataError(f"the backtest failed: {type(run).__name__}: {run}")
+        # not a lack of data (status 3) but a fault: said in one sentence, status 1
+        raise BacktestError(f"the backtest failed: {type(run).__name__}: {run}")
     return run
 
 
