@@ -121,6 +121,22 @@ def report_stem(a: Assessment) -> str:
     return f"{a.spec.site_id}_{a.as_of.date()}"
 
 
+def read_document(paths: list[str]) -> dict[str, Any] | None:
+    """The JSON document among a report's files, read back; None when it is gone or is not
+    a JSON object."""
+    import json
+    from pathlib import Path
+
+    doc = next((p for p in paths if p.endswith(".json")), None)
+    if doc is None:
+        return None
+    try:
+        value = json.loads(Path(doc).read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return None
+    return value if isinstance(value, dict) else None
+
+
 def report_summary(doc: dict[str, Any]) -> dict[str, Any]:
     """What the overview and history pages show of a report, from its JSON document; recorded
     with the report in the store (so that those pages need no report file)."""

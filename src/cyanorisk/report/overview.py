@@ -16,7 +16,6 @@ from __future__ import annotations
 import csv
 import html
 import io
-import json
 import re
 from dataclasses import dataclass
 from pathlib import Path
@@ -120,12 +119,12 @@ def _summary(report: IssuedReport | None) -> dict[str, Any]:
         return {}
     if report.summary:
         return report.summary
-    from cyanorisk.report.document import report_summary
+    from cyanorisk.report.document import read_document, report_summary
 
-    doc = next((p for p in report.paths if p.endswith(".json")), None)
+    doc = read_document(report.paths)
     try:
-        return report_summary(json.loads(Path(doc).read_text(encoding="utf-8"))) if doc else {}
-    except (OSError, ValueError, KeyError, TypeError):
+        return report_summary(doc) if doc is not None else {}
+    except (KeyError, TypeError, AttributeError):  # a document of another shape
         return {}
 
 

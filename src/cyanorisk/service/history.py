@@ -1,13 +1,11 @@
-"""A site's past reports, read from the store: the previous report for 'what changed', and
-(for the history pages) the reports of every day."""
+"""A site's previous report, read from the store, as 'what changed' compares with it (the
+history pages are :mod:`cyanorisk.report.overview`)."""
 
 from __future__ import annotations
 
-import json
-from pathlib import Path
-
 from cyanorisk.errors import StoreError
 from cyanorisk.forecast import Previous
+from cyanorisk.report.document import read_document
 from cyanorisk.service.store import IssuedReport, Store
 
 
@@ -17,12 +15,11 @@ def as_previous(report: IssuedReport | None) -> Previous | None:
     if report is None:
         return None
     last = None
-    doc = next((p for p in report.paths if p.endswith(".json")), None)
-    if doc is not None and Path(doc).exists():
+    doc = read_document(report.paths)
+    if doc is not None:
         try:
-            last = json.loads(Path(doc).read_text(encoding="utf-8"))["observed"].get(
-                "last_sampled_at_utc")
-        except (OSError, ValueError, KeyError, TypeError, AttributeError):
+            last = doc["observed"].get("last_sampled_at_utc")
+        except (KeyError, TypeError, AttributeError):  # a document of another shape
             last = None
     return Previous(report.as_of, report.status, report.level, report.probabilities or None, last)
 
