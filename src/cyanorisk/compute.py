@@ -132,15 +132,20 @@ class DaskEngine:
         return 2 * self.workers
 
     def submit(self, key: str, fn: Callable[..., Any], *args: Any) -> Ticket:
-        return _Future(key, self.client.submit(fn, *args, pure=False, key=f"{fn.__name__}-{key}"))
+        # a key of its own for every submission: Dask hands back an earlier future that still
+        # holds the same key, which would be an earlier run's result
+        import uuid
+
+        dask_key = f"{fn.__name__}-{key}-{uuid.uuid4().hex}"
+        return _Future(key, self.client.submit(fn, *args, pure=False, key=dask_key))
 
     def next_done(self, pending: list[Ticket]) -> Ticket:
         from distributed import wait
 
-        futures = {t.future: t for t in pending}  # type: ignore[attr-defined]
         try:
             with self.client.as_current():
-                done = wait(list(futures), return_when="FIRST_COMPLETED").done
+                done = wait([t.future for t in pending],  # type: ignore[attr-defined]
+                            return_when="FIRST_COMPLETED").done
         except Exception as exc:
             if _lost(exc) or isinstance(exc, OSError):
                 raise WorkerLostError(f"the cluster was lost ({type(exc).__name__})") from None
