@@ -242,12 +242,19 @@ def test_backtests_spread_over_sites_and_seasons_give_the_one_site_backtests(tmp
     from cyanorisk.pipeline.many import backtest_sites
 
     config = load_config(two_sites.write_config(tmp_path))
-    spread = backtest_sites(config, "2024", local_engine, progress=False)
+    said = io.StringIO()
+    spread = backtest_sites(config, "2023-2024", local_engine, progress=True, stream=said)
     assert list(spread) == [SITE, SISTER]
+    # one line per site-season (none for putting a site's seasons together), the later first
+    lines = said.getvalue().splitlines()
+    assert len(lines) == 4 and lines[-1].endswith("(4/4)"), lines
+    assert sorted(line.split()[1] for line in lines) == sorted(
+        f"{s}/{y}" for s in (SITE, SISTER) for y in (2023, 2024))
+    assert spread[SITE].span == "2023-2024"  # the demo's eight seasons: both replayed
     for site in config.sites:
-        alone = SitePipeline.of(config, site).backtest("2024")
+        alone = SitePipeline.of(config, site).backtest("2023-2024")
         run = spread[site.id]
-        assert run.span == alone.span == "2024-2024"
+        assert run.span == alone.span and run.result.notes == alone.result.notes
         pd.testing.assert_frame_equal(run.result.forecasts, alone.result.forecasts)
         pd.testing.assert_frame_equal(run.result.overall, alone.result.overall)
         pd.testing.assert_frame_equal(run.result.scores, alone.result.scores)

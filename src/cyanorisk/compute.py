@@ -197,7 +197,9 @@ def open_engine(settings: ComputeSettings) -> Engine:
             cluster = LocalCluster(n_workers=workers, threads_per_worker=1, processes=True,
                                    host="127.0.0.1", dashboard_address=None,
                                    scheduler_kwargs={"dashboard_address": "127.0.0.1:0"},
-                                   silence_logs=logging.ERROR)
+                                   # a worker's fault that matters reaches the coordinator
+                                   # through its task; what is left is noise at shutdown
+                                   silence_logs=logging.CRITICAL)
         except Exception as exc:  # e.g. no free port, no process may be started
             raise ComputeError(f"compute.engine = 'local': the LocalCluster of {workers} "
                                f"worker(s) cannot start ({exc})") from None

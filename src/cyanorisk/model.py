@@ -515,8 +515,9 @@ class CountModel:
         self.coverage = coverage
 
     def fit(self, X: pd.DataFrame, log10_count: np.ndarray) -> CountModel:
-        import statsmodels.api as sm
         from scipy import stats
+        from statsmodels.regression.linear_model import OLS  # not statsmodels.api (six times the import time)
+        from statsmodels.tools.tools import add_constant
 
         drivers = list(self.drivers)
         _check_columns(X, drivers)
@@ -524,9 +525,9 @@ class CountModel:
         keep = ~np.isnan(y)
         Xl = X.loc[keep, drivers].astype(float)
         self.median_ = np.nan_to_num(np.nanmedian(Xl.to_numpy(), axis=0))
-        A = sm.add_constant(Xl.fillna(pd.Series(self.median_, index=drivers)).to_numpy(),
+        A = add_constant(Xl.fillna(pd.Series(self.median_, index=drivers)).to_numpy(),
                             has_constant="add")
-        result = sm.OLS(y[keep], A).fit()
+        result = OLS(y[keep], A).fit()
         self.params_ = np.asarray(result.params)
         self.cov_ = np.asarray(result.cov_params())
         self.resid_var_ = float(result.scale)
