@@ -526,7 +526,7 @@ class CountModel:
         Xl = X.loc[keep, drivers].astype(float)
         self.median_ = np.nan_to_num(np.nanmedian(Xl.to_numpy(), axis=0))
         A = add_constant(Xl.fillna(pd.Series(self.median_, index=drivers)).to_numpy(),
-                            has_constant="add")
+                         has_constant="add")
         result = OLS(y[keep], A).fit()
         self.params_ = np.asarray(result.params)
         self.cov_ = np.asarray(result.cov_params())

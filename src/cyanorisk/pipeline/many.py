@@ -57,10 +57,11 @@ def backtest_sites(config: Config, seasons_text: str | None, engine: Engine,
 
     # the later seasons first, all sites together: they learn from more and take longer, so
     # the short ones come last and no worker is left waiting for the others at the end
-    seasons = sorted(((-s, site_id) for site_id, b in inputs.items() for s in b.seasons))
-    bar = Progress(len(seasons), "backtest", stream=stream) if progress else None
-    tasks = [(f"{site_id}/{-s}", replay_season, (b.spec, b.table, -s, b.thresholds))
-             for s, site_id in seasons for b in (inputs[site_id],)]
+    order = sorted(((site_id, s) for site_id, b in inputs.items() for s in b.seasons),
+                   key=lambda pair: (-pair[1], pair[0]))
+    bar = Progress(len(order), "backtest", stream=stream) if progress else None
+    tasks = [(f"{site_id}/{s}", replay_season, (b.spec, b.table, s, b.thresholds))
+             for site_id, s in order for b in [inputs[site_id]]]
     for done in run_all(engine, tasks, follow=scores_when_complete):
         site_id, _, part = done.key.partition("/")
         if done.error is not None:
